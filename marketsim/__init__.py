@@ -1,0 +1,54 @@
+"""marketsim: how biased and how noisy will a marketplace A/B test be?
+
+Simulate a two-sided market of customers and listings exactly, run experiment
+designs on it and score their estimators against the true global treatment
+effect. See the README for a tour.
+"""
+
+from marketsim import scenarios
+from marketsim.cells import MarketCells, build_cells
+from marketsim.designs import (
+    CellSplit,
+    CustomerSide,
+    Design,
+    GlobalControl,
+    GlobalTreatment,
+    ListingSide,
+    TwoSided,
+)
+from marketsim.engine import simulate
+from marketsim.estimators import (
+    CustomerSideEstimator,
+    Estimate,
+    Estimator,
+    ListingSideEstimator,
+    TwoSidedCorrected,
+    TwoSidedNaive,
+)
+from marketsim.ledger import Ledger
+from marketsim.market import Market, Treatment
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "Market",
+    "Treatment",
+    "Design",
+    "CellSplit",
+    "GlobalControl",
+    "GlobalTreatment",
+    "CustomerSide",
+    "ListingSide",
+    "TwoSided",
+    "MarketCells",
+    "build_cells",
+    "simulate",
+    "Ledger",
+    "scenarios",
+    "Estimator",
+    "Estimate",
+    "CustomerSideEstimator",
+    "ListingSideEstimator",
+    "TwoSidedNaive",
+    "TwoSidedCorrected",
+]

@@ -1,0 +1,291 @@
+"""Experiment designs: who is treated, expressed as a split of the market into cells.
+
+A design never touches the engine. It only says how each customer type and each
+listing type divides into a treated and a control part (:class:`CellSplit`);
+:func:`marketsim.cells.build_cells` turns that split into the arrays the engine
+and the large-market model read. A treated customer looking at a treated listing
+sees the treatment; every other pair sees the market as it is.
+
+Writing a new design takes a few lines::
+
+    @dataclass(frozen=True)
+    class OnlyStudios(ms.Design):
+        treated: float = 0.5
+        def split(self, market):
+            listings = [self.treated if name == "studio" else 0.0
+                        for name in market.listing_types]
+            return ms.CellSplit.from_fractions(market, customers=1.0, listings=listings)
+"""
+
+from __future__ import annotations
+
+import math
+from abc import ABC, abstractmethod
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike
+
+from marketsim import _validation as check
+from marketsim.market import Market
+
+
+@dataclass(frozen=True, eq=False)
+class CellSplit:
+    """How a design divides customer types and listing types into cells.
+
+    Attributes
+    ----------
+    customer_type : ndarray of int, shape (n_customer_cells,)
+        Customer type of each customer cell.
+    customer_treated : ndarray of bool, shape (n_customer_cells,)
+        Whether customers of the cell are exposed to the treatment.
+    customer_share : ndarray of float, shape (n_customer_cells,)
+        Probability that an arriving customer falls in the cell (sums to 1).
+    listing_type : ndarray of int, shape (n_listing_cells,)
+        Listing type of each listing cell.
+    listing_treated : ndarray of bool, shape (n_listing_cells,)
+        Whether listings of the cell carry the treatment.
+    listing_count : ndarray of int, shape (n_listing_cells,)
+        Number of listings in the cell.
+    """
+
+    customer_type: np.ndarray
+    customer_treated: np.ndarray
+    customer_share: np.ndarray
+    listing_type: np.ndarray
+    listing_treated: np.ndarray
+    listing_count: np.ndarray
+
+    @classmethod
+    def from_fractions(
+        cls, market: Market, customers: float | ArrayLike, listings: float | ArrayLike
+    ) -> CellSplit:
+        """Split every type by the share of it that is treated.
+
+        Parameters
+        ----------
+        market : Market
+        customers : float or array_like, shape (n_customer_types,)
+            Probability that an arriving customer of each type is treated.
+        listings : float or array_like, shape (n_listing_types,)
+            Share of the listings of each type that is treated. The treated count
+            of type ``j`` is ``floor(listings[j] * n_j + 0.5)`` (nearest whole
+            number, halves rounded up).
+
+        Returns
+        -------
+        CellSplit
+            Cells with no customers or no listings are left out.
+        """
+        customer_fraction = check.array(
+            "customers", customers, (market.n_customer_types,), "(n_customer_types,)",
+            low=0.0, high=1.0, broadcast=True)
+        listing_fraction = check.array(
+            "listings", listings, (market.n_listing_types,), "(n_listing_types,)",
+            low=0.0, high=1.0, broadcast=True)
+        c_type, c_treated, c_share = [], [], []
+        for i, share in enumerate(market.customer_shares):
+            for treated, part in ((False, 1.0 - customer_fraction[i]),
+                                  (True, customer_fraction[i])):
+                if share * part > 0.0:
+                    c_type.append(i)
+                    c_treated.append(treated)
+                    c_share.append(share * part)
+        l_type, l_treated, l_count = [], [], []
+        for j, count in enumerate(market.listing_counts):
+            n_treated = math.floor(listing_fraction[j] * count + 0.5)
+            for treated, part in ((False, int(count) - n_treated), (True, n_treated)):
+                if part > 0:
+                    l_type.append(j)
+                    l_treated.append(treated)
+                    l_count.append(part)
+        shares = np.array(c_share)
+        return cls(
+            customer_type=_frozen(np.array(c_type, dtype=np.int64)),
+            customer_treated=_frozen(np.array(c_treated, dtype=bool)),
+            customer_share=_frozen(shares / shares.sum()),
+            listing_type=_frozen(np.array(l_type, dtype=np.int64)),
+            listing_treated=_frozen(np.array(l_treated, dtype=bool)),
+            listing_count=_frozen(np.array(l_count, dtype=np.int64)),
+        )
+
+    @property
+    def customer_fraction(self) -> float:
+        """Share of arriving customers who are treated (``a_C``)."""
+        return float(self.customer_share[self.customer_treated].sum())
+
+    @property
+    def listing_fraction(self) -> float:
+        """Share of listings that are treated after rounding (``a_L``)."""
+        return float(self.listing_count[self.listing_treated].sum() / self.listing_count.sum())
+
+
+def _frozen(values: np.ndarray) -> np.ndarray:
+    values.flags.writeable = False
+    return values
+
+
+class Design(ABC):
+    """Base class of experiment designs.
+
+    A subclass implements :meth:`split`, usually with
+    :meth:`CellSplit.from_fractions`. Make it a frozen dataclass so that it has
+    a readable ``repr`` and can be compared and pickled (for worker processes).
+    """
+
+    @abstractmethod
+    def split(self, market: Market) -> CellSplit:
+        """Divide ``market`` into treated and control cells."""
+
+    @property
+    def label(self) -> str:
+        """Short name used in tables and plots."""
+        return repr(self)
+
+
+@dataclass(frozen=True)
+class GlobalControl(Design):
+    """Nobody is treated: the world without the feature."""
+
+    def split(self, market: Market) -> CellSplit:
+        return CellSplit.from_fractions(market, customers=0.0, listings=0.0)
+
+
+@dataclass(frozen=True)
+class GlobalTreatment(Design):
+    """Everybody is treated: the world with the feature."""
+
+    def split(self, market: Market) -> CellSplit:
+        return CellSplit.from_fractions(market, customers=1.0, listings=1.0)
+
+
+@dataclass(frozen=True)
+class CustomerSide(Design):
+    """Customer-side randomization: each arriving customer is treated with probability
+    ``treated`` and then sees the treatment on every listing.
+
+    Parameters
+    ----------
+    treated : float
+        Treated share of customers ``a_C``, in (0, 1).
+    """
+
+    treated: float = 0.5
+
+    def __post_init__(self) -> None:
+        check.number("treated", self.treated, low=0.0, high=1.0, low_open=True,
+                     high_open=True)
+
+    def split(self, market: Market) -> CellSplit:
+        return CellSplit.from_fractions(market, customers=self.treated, listings=1.0)
+
+
+@dataclass(frozen=True)
+class ListingSide(Design):
+    """Listing-side randomization: a share ``treated`` of the listings of every type
+    carries the treatment, for every customer.
+
+    Parameters
+    ----------
+    treated : float
+        Treated share of listings ``a_L``, in (0, 1). Each type is stratified:
+        ``floor(treated * n_j + 0.5)`` of its ``n_j`` listings are treated, so the
+        realised share can differ slightly from ``treated``; estimators use the
+        realised share.
+
+    Notes
+    -----
+    Every customer counts as exposed, so a treatment's ``outside_utility_shift``
+    applies to all customers (this is two-sided randomization with ``a_C = 1``).
+    """
+
+    treated: float = 0.5
+
+    def __post_init__(self) -> None:
+        check.number("treated", self.treated, low=0.0, high=1.0, low_open=True,
+                     high_open=True)
+
+    def split(self, market: Market) -> CellSplit:
+        return CellSplit.from_fractions(market, customers=1.0, listings=self.treated)
+
+
+@dataclass(frozen=True)
+class TwoSided(Design):
+    """Two-sided randomization: customers treated with probability ``customers``,
+    listings with share ``listings``; only a treated customer looking at a treated
+    listing sees the treatment.
+
+    ``listings=1`` is customer-side randomization, ``customers=1`` listing-side.
+
+    Parameters
+    ----------
+    customers : float
+        Treated share of customers ``a_C``, in (0, 1].
+    listings : float
+        Treated share of listings ``a_L``, in (0, 1] (stratified by type as in
+        :class:`ListingSide`). Not both equal to 1.
+
+    References
+    ----------
+    Johari, Li, Liskovich and Weintraub, "Experimental design in two-sided
+    platforms: an analysis of bias", Management Science 68(10), 2022.
+    """
+
+    customers: float = 0.5
+    listings: float = 0.5
+
+    def __post_init__(self) -> None:
+        check.number("customers", self.customers, low=0.0, high=1.0, low_open=True)
+        check.number("listings", self.listings, low=0.0, high=1.0, low_open=True)
+        if self.customers == 1.0 and self.listings == 1.0:
+            raise ValueError(
+                "customers and listings must not both be 1 (that is global treatment), "
+                "got customers=1.0, listings=1.0"
+            )
+
+    def split(self, market: Market) -> CellSplit:
+        return CellSplit.from_fractions(market, customers=self.customers,
+                                        listings=self.listings)
+
+    @classmethod
+    def for_balance(
+        cls, balance: float, customers: float = 0.5, listings: float = 0.5
+    ) -> TwoSided:
+        """Treated fractions that follow the market balance.
+
+        With ``beta = exp(-balance)``: ``a_C = (1 - beta) + beta * customers`` and
+        ``a_L = listings * (1 - beta) + beta``. Near customer-side randomization
+        when demand is scarce (small balance), near listing-side when supply is
+        scarce (large balance).
+
+        Parameters
+        ----------
+        balance : float
+            Market balance (:attr:`Market.balance`), > 0.
+        customers, listings : float
+            Base fractions ``a_C*`` and ``a_L*``, in (0, 1).
+
+        References
+        ----------
+        Johari et al., Management Science 68(10), 2022.
+        """
+        balance = check.number("balance", balance, low=0.0, low_open=True)
+        check.number("customers", customers, low=0.0, high=1.0, low_open=True,
+                     high_open=True)
+        check.number("listings", listings, low=0.0, high=1.0, low_open=True,
+                     high_open=True)
+        beta = math.exp(-balance)
+        return cls(customers=(1.0 - beta) + beta * customers,
+                   listings=listings * (1.0 - beta) + beta)
+
+
+__all__ = [
+    "CellSplit",
+    "Design",
+    "GlobalControl",
+    "GlobalTreatment",
+    "CustomerSide",
+    "ListingSide",
+    "TwoSided",
+]

@@ -1,0 +1,293 @@
+"""Estimators: a ledger in, an estimate and the naive standard error out.
+
+Every estimator here is a linear combination of the group rates ``Q_xy``: the
+metric per unit time produced by customers of treatment status ``x`` with
+listings of status ``y`` (1 = treated, 0 = control). A subclass only supplies
+the 2 x 2 matrix of coefficients (:meth:`Estimator.weights`) for the design's
+treated fractions ``a_C`` (customers) and ``a_L`` (listings); the base class
+turns a ledger into an :class:`Estimate`.
+
+Metrics
+-------
+``"bookings"``
+    Bookings per unit time.
+``"revenue"``
+    Revenue per unit time (needs :attr:`Market.price`).
+``"conversion"``
+    Bookings per arriving customer: the bookings estimate divided by the
+    observed arrival rate of the window.
+
+Naive standard error
+--------------------
+What an analyst who treats units as independent would report: the counts of
+each group are taken as independent Poisson (compound Poisson for revenue), so
+``Var(Q_xy) = sum(price**2 * bookings) / window**2``. Interference between units
+makes this wrong, which is exactly what a study measures (interval coverage).
+"""
+
+from __future__ import annotations
+
+import math
+from abc import ABC, abstractmethod
+from dataclasses import dataclass
+
+import numpy as np
+
+from marketsim import _validation as check
+from marketsim.designs import CellSplit
+from marketsim.ledger import Ledger
+from marketsim.market import Market
+
+METRICS = ("bookings", "revenue", "conversion")
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """One estimate with the naive standard error an analyst would report."""
+
+    value: float
+    standard_error: float
+
+    def interval(self, level: float = 0.95) -> tuple[float, float]:
+        """Normal-theory confidence interval at ``level``."""
+        from scipy.stats import norm
+
+        level = check.number("level", level, low=0.0, high=1.0, low_open=True,
+                             high_open=True)
+        half = norm.ppf(0.5 + level / 2.0) * self.standard_error
+        return self.value - half, self.value + half
+
+
+def group_rates(ledger: Ledger, metric: str = "bookings") -> tuple[np.ndarray, np.ndarray]:
+    """Metric per unit time of each (customer status, listing status) group.
+
+    Parameters
+    ----------
+    ledger : Ledger
+    metric : {"bookings", "revenue", "conversion"}
+
+    Returns
+    -------
+    rates : ndarray, shape (2, 2)
+        ``rates[x, y]`` is ``Q_xy`` (for conversion: per arrival instead of per
+        unit time).
+    variances : ndarray, shape (2, 2)
+        Naive (Poisson) variance of each ``Q_xy``.
+    """
+    check.choice("metric", metric, METRICS)
+    cells = ledger.cells
+    value = np.ones(cells.n_listing_cells)
+    if metric == "revenue":
+        if cells.price is None:
+            raise ValueError(
+                "metric 'revenue' needs a market with prices: pass price=[...] to "
+                "ms.Market, got a market without prices"
+            )
+        value = cells.price
+    bookings = np.asarray(ledger.bookings, dtype=float)
+    total = bookings * value[None, :]
+    square = bookings * (value**2)[None, :]
+    rates = np.zeros((2, 2))
+    variances = np.zeros((2, 2))
+    customer = cells.split.customer_treated.astype(int)
+    listing = cells.split.listing_treated.astype(int)
+    np.add.at(rates, (customer[:, None], listing[None, :]), total)
+    np.add.at(variances, (customer[:, None], listing[None, :]), square)
+    scale = ledger.window
+    if metric == "conversion":
+        scale = max(ledger.arrival_count, 1.0)
+    return rates / scale, variances / scale**2
+
+
+def metric_rate(ledger: Ledger, metric: str = "bookings") -> float:
+    """The metric of the whole market in the window (e.g. total bookings per unit
+    time); the difference of this between the two global worlds is the global
+    treatment effect."""
+    rates, _ = group_rates(ledger, metric)
+    return float(rates.sum())
+
+
+class Estimator(ABC):
+    """Base class of estimators that are linear in the group rates ``Q_xy``.
+
+    Subclasses implement :meth:`weights`; they raise ``ValueError`` when the
+    design does not fit (for example a listing-side estimator on a design that
+    treats no listings, or all of them).
+    """
+
+    @property
+    def name(self) -> str:
+        """Short name used in tables and plots."""
+        return type(self).__name__
+
+    @abstractmethod
+    def weights(self, split: CellSplit, market: Market) -> np.ndarray:
+        """Coefficients ``c[x, y]`` with ``estimate = sum(c * Q)``, shape (2, 2)."""
+
+    def estimate(self, ledger: Ledger, metric: str = "bookings") -> Estimate:
+        """Apply the estimator to one ledger.
+
+        Parameters
+        ----------
+        ledger : Ledger
+            A simulated run or a large-market expected ledger.
+        metric : {"bookings", "revenue", "conversion"}
+
+        Returns
+        -------
+        Estimate
+        """
+        weights = self.weights(ledger.cells.split, ledger.cells.market)
+        rates, variances = group_rates(ledger, metric)
+        value = float(np.sum(weights * rates))
+        return Estimate(value, math.sqrt(float(np.sum(weights**2 * variances))))
+
+    def __repr__(self) -> str:
+        return self.name
+
+
+def _fraction(split: CellSplit, side: str, estimator: str) -> float:
+    value = split.customer_fraction if side == "customers" else split.listing_fraction
+    if not 0.0 < value < 1.0:
+        raise ValueError(
+            f"{estimator} needs a design that treats some but not all {side} "
+            f"(treated share strictly between 0 and 1), got a design treating "
+            f"{value:.4g} of {side}"
+        )
+    return value
+
+
+class CustomerSideEstimator(Estimator):
+    """Difference in means between treated and control customers:
+    ``Q_1. / a_C - Q_0. / (1 - a_C)``.
+
+    Fits any design that randomizes customers (``0 < a_C < 1``).
+    """
+
+    @property
+    def name(self) -> str:
+        return "customer-side"
+
+    def weights(self, split: CellSplit, market: Market) -> np.ndarray:
+        a = _fraction(split, "customers", self.name)
+        return np.array([[-1.0 / (1.0 - a)] * 2, [1.0 / a] * 2])
+
+
+class ListingSideEstimator(Estimator):
+    """Difference in means between treated and control listings:
+    ``Q_.1 / a_L - Q_.0 / (1 - a_L)``, with the realised treated share ``a_L``.
+
+    Fits any design that randomizes listings (``0 < a_L < 1``).
+    """
+
+    @property
+    def name(self) -> str:
+        return "listing-side"
+
+    def weights(self, split: CellSplit, market: Market) -> np.ndarray:
+        a = _fraction(split, "listings", self.name)
+        return np.array([[-1.0 / (1.0 - a), 1.0 / a]] * 2)
+
+
+class TwoSidedNaive(Estimator):
+    """Naive two-sided estimator:
+    ``Q_11 / (a_C a_L) - (Q_10 + Q_01 + Q_00) / (1 - a_C a_L)``.
+
+    Equals the customer-side estimator when ``a_L = 1`` and the listing-side
+    one when ``a_C = 1``.
+
+    References
+    ----------
+    Johari, Li, Liskovich and Weintraub, "Experimental design in two-sided
+    platforms: an analysis of bias", Management Science 68(10), 2022.
+    """
+
+    @property
+    def name(self) -> str:
+        return "two-sided naive"
+
+    def weights(self, split: CellSplit, market: Market) -> np.ndarray:
+        both = split.customer_fraction * split.listing_fraction
+        if not 0.0 < both < 1.0:
+            raise ValueError(
+                f"{self.name} needs a design with some treated pairs and some control "
+                f"pairs (a_C * a_L strictly between 0 and 1), got a_C * a_L = {both:.4g}"
+            )
+        rest = -1.0 / (1.0 - both)
+        return np.array([[rest, rest], [rest, 1.0 / both]])
+
+
+@dataclass(frozen=True, repr=False)
+class TwoSidedCorrected(Estimator):
+    """Two-sided estimator corrected for interference.
+
+    ``naive + k * [beta * (Q_10/a_C - Q_00/(1-a_C)) + (1-beta) * (Q_01/a_L - Q_00/(1-a_L))]``
+
+    The first contrast compares treated and control customers on control
+    listings (listings competing for customers), the second treated and control
+    listings seen by control customers (customers competing for listings).
+
+    Parameters
+    ----------
+    k : {1, 2}
+        Weight of the correction.
+    beta : float, optional
+        Weight of the first contrast, in [0, 1]; default ``exp(-balance)`` of
+        the market.
+
+    Notes
+    -----
+    The formula is checked numerically in ``tests/test_meanfield.py`` against
+    the large-market limit, where the bias of each estimator is computed without
+    Monte Carlo error; what was found is reported there and in the README.
+
+    References
+    ----------
+    Johari, Li, Liskovich and Weintraub, Management Science 68(10), 2022.
+    """
+
+    k: int = 1
+    beta: float | None = None
+
+    def __post_init__(self) -> None:
+        if self.k not in (1, 2) or isinstance(self.k, bool):
+            raise ValueError(f"k must be 1 or 2, got {self.k!r}")
+        if self.beta is not None:
+            check.number("beta", self.beta, low=0.0, high=1.0)
+
+    @property
+    def name(self) -> str:
+        suffix = "" if self.beta is None else f", beta={self.beta:g}"
+        return f"two-sided corrected (k={self.k}{suffix})"
+
+    def weights(self, split: CellSplit, market: Market) -> np.ndarray:
+        a_c = _fraction(split, "customers", self.name)
+        a_l = _fraction(split, "listings", self.name)
+        beta = math.exp(-market.balance) if self.beta is None else self.beta
+        first = np.array([[-1.0 / (1.0 - a_c), 0.0], [1.0 / a_c, 0.0]])
+        second = np.array([[-1.0 / (1.0 - a_l), 1.0 / a_l], [0.0, 0.0]])
+        naive = TwoSidedNaive().weights(split, market)
+        return naive + self.k * (beta * first + (1.0 - beta) * second)
+
+
+def all_estimators() -> tuple[Estimator, ...]:
+    """Every built-in estimator, in the order tables show them."""
+    return (
+        CustomerSideEstimator(),
+        ListingSideEstimator(),
+        TwoSidedNaive(),
+        TwoSidedCorrected(k=1),
+        TwoSidedCorrected(k=2),
+    )
+
+
+def fitting_estimators(split: CellSplit, market: Market) -> tuple[Estimator, ...]:
+    """The built-in estimators that fit a design's split."""
+    fitting = []
+    for estimator in all_estimators():
+        try:
+            estimator.weights(split, market)
+        except ValueError:
+            continue
+        fitting.append(estimator)
+    return tuple(fitting)

@@ -1,0 +1,381 @@
+"""The market specification and the treatment under test.
+
+Both classes are immutable and validated once, at construction; everything
+downstream (designs, engine, large-market model) trusts them.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from numpy.typing import ArrayLike
+
+from marketsim import _validation as check
+
+SHARE_TOLERANCE = 1e-9
+
+
+@dataclass(frozen=True, eq=False, init=False)
+class Market:
+    """A finite two-sided market of customers and listings.
+
+    Listings of type ``j`` (``listing_counts[j]`` of them) are either available or
+    busy. A booked listing stays busy for an exponential time with mean
+    ``mean_busy_time[j]``. Customers arrive as a Poisson process of rate
+    ``arrival_rate``; each is of type ``i`` with probability
+    ``customer_shares[i]``, considers each *available* listing of type ``j``
+    independently with probability ``consideration[i, j]`` and books listing ``l``
+    of type ``j`` among those considered with the multinomial-logit probability
+
+    .. math:: \\frac{w_{ij}}{N w_{0i} + \\sum_{\\text{considered}} w},
+              \\qquad w_{ij} = e^{u_{ij}},\\ w_{0i} = e^{u_{0i}},
+
+    or leaves without booking. ``N`` is the total number of listings.
+
+    Parameters
+    ----------
+    listing_counts : sequence of int, shape (n_listing_types,)
+        Number of listings of each type; whole numbers >= 1.
+    mean_busy_time : array_like, shape (n_listing_types,)
+        Mean time a booked listing stays busy; finite, > 0.
+    arrival_rate : float
+        Customer arrivals per unit time (all types); finite, > 0.
+    customer_shares : array_like, shape (n_customer_types,)
+        Probability that an arriving customer is of each type; >= 0, summing to 1.
+    consideration : array_like, shape (n_customer_types, n_listing_types)
+        Probability that a customer of type ``i`` considers a given available
+        listing of type ``j``; in [0, 1]. A scalar applies to every pair.
+    utility : array_like, shape (n_customer_types, n_listing_types)
+        Logit utility ``u_ij`` of a listing of type ``j`` to a customer of type ``i``.
+        A scalar applies to every pair.
+    outside_utility : array_like, shape (n_customer_types,)
+        Utility ``u_0i`` of not booking. A scalar applies to every type.
+    listing_types, customer_types : sequence of str, optional
+        Distinct names of the types (default ``"listing type 0"``, ...).
+    price : array_like, shape (n_listing_types,), optional
+        Price of one booking of each listing type; enables the revenue metric.
+
+    Notes
+    -----
+    **The outside option grows with the market.** Its weight is ``N * w_0i``, not
+    ``w_0i``. With a fixed number of considered listings per listing, the booking
+    probability therefore stays meaningful as ``N`` grows, and the market has the
+    large-market limit of :mod:`marketsim.meanfield` (Kurtz, 1970).
+
+    **Balance** is ``arrival_rate / sum_j(n_j / mean_busy_time[j])``: arrivals per
+    unit time over the rate at which listings would be released if every listing
+    were busy. Small balance means demand is scarce, large balance means supply
+    is scarce.
+
+    Examples
+    --------
+    >>> import marketsim as ms
+    >>> m = ms.Market(listing_counts=[20], mean_busy_time=[2.0], arrival_rate=5.0,
+    ...               customer_shares=[1.0], consideration=0.5, utility=0.0,
+    ...               outside_utility=-2.0)
+    >>> round(m.balance, 3)
+    0.5
+    """
+
+    listing_counts: np.ndarray
+    mean_busy_time: np.ndarray
+    arrival_rate: float
+    customer_shares: np.ndarray
+    consideration: np.ndarray
+    utility: np.ndarray
+    outside_utility: np.ndarray
+    listing_types: tuple[str, ...]
+    customer_types: tuple[str, ...]
+    price: np.ndarray | None = field(default=None)
+
+    def __init__(
+        self,
+        listing_counts: Sequence[int],
+        mean_busy_time: ArrayLike,
+        arrival_rate: float,
+        customer_shares: ArrayLike,
+        consideration: ArrayLike,
+        utility: ArrayLike,
+        outside_utility: ArrayLike,
+        listing_types: Sequence[str] | None = None,
+        customer_types: Sequence[str] | None = None,
+        price: ArrayLike | None = None,
+    ) -> None:
+        counts = _listing_counts(listing_counts)
+        n_listing = counts.size
+        n_customer = int(np.size(customer_shares))
+        shares = check.array("customer_shares", customer_shares, (n_customer,),
+                             "(n_customer_types,)", low=0.0, high=1.0)
+        if shares.size == 0:
+            raise ValueError("customer_shares must list at least one customer type, got []")
+        if abs(shares.sum() - 1.0) > SHARE_TOLERANCE:
+            raise ValueError(
+                f"customer_shares must sum to 1 (tolerance {SHARE_TOLERANCE:g}), "
+                f"got sum {shares.sum()!r}"
+            )
+        pair = (n_customer, n_listing)
+        pair_text = "(n_customer_types, n_listing_types)"
+        set_ = object.__setattr__
+        set_(self, "listing_counts", counts)
+        set_(self, "mean_busy_time", check.array(
+            "mean_busy_time", mean_busy_time, (n_listing,), "(n_listing_types,)",
+            low=0.0, low_open=True))
+        set_(self, "arrival_rate", check.number("arrival_rate", arrival_rate, low=0.0,
+                                                low_open=True))
+        set_(self, "customer_shares", shares)
+        set_(self, "consideration", check.array(
+            "consideration", consideration, pair, pair_text, low=0.0, high=1.0,
+            broadcast=True))
+        set_(self, "utility", check.array("utility", utility, pair, pair_text,
+                                          broadcast=True))
+        set_(self, "outside_utility", check.array(
+            "outside_utility", outside_utility, (n_customer,), "(n_customer_types,)",
+            broadcast=True))
+        set_(self, "listing_types", check.names("listing_types", listing_types, n_listing,
+                                                "listing type"))
+        set_(self, "customer_types", check.names("customer_types", customer_types,
+                                                 n_customer, "customer type"))
+        set_(self, "price", None if price is None else check.array(
+            "price", price, (n_listing,), "(n_listing_types,)", low=0.0))
+
+    # ----------------------------------------------------------------- derived
+    @property
+    def n_listings(self) -> int:
+        """Total number of listings ``N``."""
+        return int(self.listing_counts.sum())
+
+    @property
+    def n_listing_types(self) -> int:
+        """Number of listing types ``J``."""
+        return int(self.listing_counts.size)
+
+    @property
+    def n_customer_types(self) -> int:
+        """Number of customer types ``I``."""
+        return int(self.customer_shares.size)
+
+    @property
+    def release_capacity(self) -> float:
+        """Release rate if every listing were busy: ``sum_j n_j / mean_busy_time[j]``."""
+        return float(np.sum(self.listing_counts / self.mean_busy_time))
+
+    @property
+    def balance(self) -> float:
+        """Arrival-to-supply balance ``arrival_rate / release_capacity``."""
+        return self.arrival_rate / self.release_capacity
+
+    # ----------------------------------------------------------------- variants
+    def with_balance(self, balance: float) -> Market:
+        """The same market with the arrival rate rescaled to reach ``balance``."""
+        target = check.number("balance", balance, low=0.0, low_open=True)
+        return self._replace(arrival_rate=target * self.release_capacity)
+
+    def scaled(self, factor: float) -> Market:
+        """The market with ``factor`` times the listings and arrivals (same balance).
+
+        Listing counts are rounded to the nearest whole number, at least 1.
+        """
+        factor = check.number("factor", factor, low=0.0, low_open=True)
+        counts = np.maximum(1, np.rint(self.listing_counts * factor)).astype(np.int64)
+        grown = self._replace(listing_counts=counts)
+        return grown.with_balance(self.balance)
+
+    def _replace(self, **changes: object) -> Market:
+        fields = {
+            "listing_counts": self.listing_counts,
+            "mean_busy_time": self.mean_busy_time,
+            "arrival_rate": self.arrival_rate,
+            "customer_shares": self.customer_shares,
+            "consideration": self.consideration,
+            "utility": self.utility,
+            "outside_utility": self.outside_utility,
+            "listing_types": self.listing_types,
+            "customer_types": self.customer_types,
+            "price": self.price,
+        }
+        fields.update(changes)
+        return Market(**fields)
+
+    # ----------------------------------------------------------------- display
+    def summary(self) -> pd.DataFrame:
+        """One row per customer type x listing type with every parameter of the pair.
+
+        Returns
+        -------
+        pandas.DataFrame
+            Columns ``customer_type, listing_type, customer_share, outside_utility,
+            listing_count, mean_busy_time, consideration, utility`` (and ``price``).
+        """
+        rows = []
+        for i, customer in enumerate(self.customer_types):
+            for j, listing in enumerate(self.listing_types):
+                row = {
+                    "customer_type": customer,
+                    "listing_type": listing,
+                    "customer_share": float(self.customer_shares[i]),
+                    "outside_utility": float(self.outside_utility[i]),
+                    "listing_count": int(self.listing_counts[j]),
+                    "mean_busy_time": float(self.mean_busy_time[j]),
+                    "consideration": float(self.consideration[i, j]),
+                    "utility": float(self.utility[i, j]),
+                }
+                if self.price is not None:
+                    row["price"] = float(self.price[j])
+                rows.append(row)
+        return pd.DataFrame(rows)
+
+    def __repr__(self) -> str:
+        listings = ", ".join(
+            f"{name}: {count}" for name, count in zip(self.listing_types, self.listing_counts)
+        )
+        customers = ", ".join(
+            f"{name}: {share:.3g}" for name, share in zip(self.customer_types,
+                                                          self.customer_shares)
+        )
+        return (
+            f"Market(N={self.n_listings} listings [{listings}], "
+            f"arrival_rate={self.arrival_rate:.4g}, balance={self.balance:.4g}, "
+            f"customers [{customers}])"
+        )
+
+
+def _listing_counts(value: object) -> np.ndarray:
+    raw = np.atleast_1d(np.asarray(value, dtype=object))
+    if raw.ndim != 1 or raw.size == 0:
+        raise ValueError(
+            f"listing_counts must be a non-empty list of whole numbers >= 1, got {value!r}"
+        )
+    for k, item in enumerate(raw):
+        try:
+            check.whole_number(f"listing_counts[{k}]", _as_int_like(item), low=1)
+        except ValueError:
+            raise ValueError(
+                f"listing_counts must contain whole numbers >= 1, got {item!r} at index {k}"
+            ) from None
+    counts = np.array([int(x) for x in raw], dtype=np.int64)
+    counts.flags.writeable = False
+    return counts
+
+
+def _as_int_like(item: object) -> object:
+    """Accept floats that are whole (e.g. ``10.0``) as counts; keep the rest as is."""
+    if isinstance(item, (float, np.floating)) and np.isfinite(item) and float(item).is_integer():
+        return int(item)
+    if isinstance(item, np.integer):
+        return int(item)
+    return item
+
+
+@dataclass(frozen=True, eq=False, init=False)
+class Treatment:
+    """The feature under test: how it changes a customer's choice.
+
+    Parameters
+    ----------
+    utility_shift : float or array_like, shape (n_customer_types, n_listing_types)
+        Added to the utility ``u_ij`` of treated customer-listing pairs.
+    consideration_factor : float or array_like, shape (n_customer_types, n_listing_types)
+        Multiplies the consideration probability of treated pairs; >= 0. The
+        product must stay <= 1 (checked against the market when applied).
+    outside_utility_shift : float or array_like, shape (n_customer_types,)
+        Added to the outside utility of customers the design exposes to the
+        treatment (in a listing-side design that is every customer; see
+        :class:`marketsim.ListingSide`).
+
+    Examples
+    --------
+    >>> import marketsim as ms
+    >>> ms.Treatment(utility_shift=0.2)
+    Treatment(utility_shift=0.2)
+    """
+
+    utility_shift: float | np.ndarray = 0.0
+    consideration_factor: float | np.ndarray = 1.0
+    outside_utility_shift: float | np.ndarray = 0.0
+
+    def __init__(
+        self,
+        utility_shift: float | ArrayLike = 0.0,
+        consideration_factor: float | ArrayLike = 1.0,
+        outside_utility_shift: float | ArrayLike = 0.0,
+    ) -> None:
+        set_ = object.__setattr__
+        set_(self, "utility_shift", _scalar_or_array("utility_shift", utility_shift, None))
+        set_(self, "consideration_factor",
+             _scalar_or_array("consideration_factor", consideration_factor, 0.0))
+        set_(self, "outside_utility_shift",
+             _scalar_or_array("outside_utility_shift", outside_utility_shift, None))
+
+    def resolve(self, market: Market) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Treated utility, consideration and outside utility for ``market``.
+
+        Returns
+        -------
+        utility : ndarray, shape (n_customer_types, n_listing_types)
+        consideration : ndarray, shape (n_customer_types, n_listing_types)
+        outside_utility : ndarray, shape (n_customer_types,)
+
+        Raises
+        ------
+        ValueError
+            If a shift has the wrong shape for the market, or the treated
+            consideration would exceed 1.
+        """
+        pair = (market.n_customer_types, market.n_listing_types)
+        pair_text = "(n_customer_types, n_listing_types)"
+        shift = check.array("utility_shift", self.utility_shift, pair, pair_text,
+                            broadcast=True)
+        factor = check.array("consideration_factor", self.consideration_factor, pair,
+                             pair_text, low=0.0, broadcast=True)
+        outside = check.array("outside_utility_shift", self.outside_utility_shift,
+                              (market.n_customer_types,), "(n_customer_types,)",
+                              broadcast=True)
+        treated_consideration = market.consideration * factor
+        if (treated_consideration > 1.0).any():
+            where = tuple(int(i) for i in np.argwhere(treated_consideration > 1.0)[0])
+            raise ValueError(
+                "consideration_factor times the market's consideration must be <= 1, "
+                f"got {treated_consideration[where]!r} for pair {where}"
+            )
+        return market.utility + shift, treated_consideration, market.outside_utility + outside
+
+    @property
+    def is_null(self) -> bool:
+        """True when the treatment changes nothing."""
+        return (
+            np.all(np.asarray(self.utility_shift) == 0.0)
+            and np.all(np.asarray(self.consideration_factor) == 1.0)
+            and np.all(np.asarray(self.outside_utility_shift) == 0.0)
+        )
+
+    def __repr__(self) -> str:
+        parts = []
+        defaults = {"utility_shift": 0.0, "consideration_factor": 1.0,
+                    "outside_utility_shift": 0.0}
+        for name, default in defaults.items():
+            value = getattr(self, name)
+            if np.ndim(value) or value != default:
+                shown = value.tolist() if isinstance(value, np.ndarray) else value
+                parts.append(f"{name}={shown!r}")
+        return f"Treatment({', '.join(parts)})"
+
+
+def _scalar_or_array(name: str, value: object, low: float | None) -> float | np.ndarray:
+    values = np.asarray(value, dtype=object)
+    if values.ndim == 0:
+        return check.number(name, value, low=low)
+    try:
+        numeric = np.asarray(value, dtype=float)
+    except (TypeError, ValueError):
+        raise ValueError(f"{name} must be a number or an array of numbers, got {value!r}") \
+            from None
+    return check.array(name, numeric, numeric.shape, "given", low=low)
+
+
+NO_TREATMENT = Treatment()
+"""The null treatment: global treatment equals global control."""
+
+__all__ = ["Market", "Treatment", "NO_TREATMENT"]
