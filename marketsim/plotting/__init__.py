@@ -1,0 +1,1 @@
+"""Matplotlib figures. Each module draws one kind of result; import matplotlib lazily."""

@@ -1,0 +1,5 @@
+"""Shared test set-up: draw figures off screen."""
+
+import matplotlib
+
+matplotlib.use("Agg")
