@@ -5,7 +5,7 @@ designs on it and score their estimators against the true global treatment
 effect. See the README for a tour.
 """
 
-from marketsim import scenarios
+from marketsim import meanfield, scenarios
 from marketsim.cells import MarketCells, build_cells
 from marketsim.designs import (
     CellSplit,
@@ -27,6 +27,15 @@ from marketsim.estimators import (
 )
 from marketsim.ledger import Ledger
 from marketsim.market import Market, Treatment
+from marketsim.planning import (
+    DesignChoice,
+    HorizonPlan,
+    choose_design,
+    plan_horizon,
+    power_table,
+    sweep,
+)
+from marketsim.study import Arm, Study, StudyResult
 
 __version__ = "0.1.0"
 
@@ -45,10 +54,20 @@ __all__ = [
     "simulate",
     "Ledger",
     "scenarios",
+    "meanfield",
     "Estimator",
     "Estimate",
     "CustomerSideEstimator",
     "ListingSideEstimator",
     "TwoSidedNaive",
     "TwoSidedCorrected",
+    "Study",
+    "Arm",
+    "StudyResult",
+    "sweep",
+    "plan_horizon",
+    "HorizonPlan",
+    "choose_design",
+    "DesignChoice",
+    "power_table",
 ]

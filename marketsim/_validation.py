@@ -15,7 +15,7 @@ import numpy as np
 
 def _shown(value: object) -> str:
     """Short text of a value for an error message."""
-    text = repr(value.tolist() if isinstance(value, np.ndarray) else value)
+    text = repr(value.tolist() if isinstance(value, (np.ndarray, np.generic)) else value)
     return text if len(text) <= 80 else text[:77] + "..."
 
 
@@ -111,7 +111,7 @@ def array(
     if bad.any():
         where = tuple(int(i) for i in np.argwhere(bad)[0])
         raise ValueError(
-            f"{name} must contain finite numbers{what}, got {values[where]!r} at index "
+            f"{name} must contain finite numbers{what}, got {_shown(values[where])} at index "
             f"{where if len(where) > 1 else where[0]}"
         )
     values = values.copy()

@@ -129,18 +129,51 @@ def _frozen(values: np.ndarray) -> np.ndarray:
 class Design(ABC):
     """Base class of experiment designs.
 
-    A subclass implements :meth:`split`, usually with
-    :meth:`CellSplit.from_fractions`. Make it a frozen dataclass so that it has
-    a readable ``repr`` and can be compared and pickled (for worker processes).
+    A design is an expansion of the market into cells: it says, for every
+    customer type, which share of arriving customers is treated and, for every
+    listing type, how many listings are treated. The engine, the large-market
+    model and the estimators only ever see the resulting cells.
+
+    To write a new design, subclass :class:`Design` and implement :meth:`split`,
+    usually in one line with :meth:`CellSplit.from_fractions`. Make the subclass
+    a frozen dataclass: it then has a readable ``repr`` (used as its
+    :attr:`label`), compares by value and pickles, which
+    :class:`marketsim.Study` needs to send it to worker processes.
+
+    Examples
+    --------
+    Only the first listing type is eligible for treatment; every customer is
+    exposed:
+
+    >>> from dataclasses import dataclass
+    >>> import marketsim as ms
+    >>> @dataclass(frozen=True)
+    ... class FirstTypeOnly(ms.Design):
+    ...     treated: float = 0.5
+    ...     def split(self, market):
+    ...         listings = [self.treated] + [0.0] * (market.n_listing_types - 1)
+    ...         return ms.CellSplit.from_fractions(market, customers=1.0, listings=listings)
+    >>> split = FirstTypeOnly().split(ms.scenarios.rehearsal_rooms())
+    >>> split.listing_count.tolist(), split.listing_treated.tolist()
+    ([15, 15, 10], [False, True, False])
     """
 
     @abstractmethod
     def split(self, market: Market) -> CellSplit:
-        """Divide ``market`` into treated and control cells."""
+        """Divide ``market`` into treated and control cells.
+
+        Parameters
+        ----------
+        market : Market
+
+        Returns
+        -------
+        CellSplit
+        """
 
     @property
     def label(self) -> str:
-        """Short name used in tables and plots."""
+        """Short name used in tables and plots (the ``repr`` unless overridden)."""
         return repr(self)
 
 
@@ -151,6 +184,10 @@ class GlobalControl(Design):
     def split(self, market: Market) -> CellSplit:
         return CellSplit.from_fractions(market, customers=0.0, listings=0.0)
 
+    @property
+    def label(self) -> str:
+        return "global control"
+
 
 @dataclass(frozen=True)
 class GlobalTreatment(Design):
@@ -158,6 +195,10 @@ class GlobalTreatment(Design):
 
     def split(self, market: Market) -> CellSplit:
         return CellSplit.from_fractions(market, customers=1.0, listings=1.0)
+
+    @property
+    def label(self) -> str:
+        return "global treatment"
 
 
 @dataclass(frozen=True)
@@ -168,7 +209,15 @@ class CustomerSide(Design):
     Parameters
     ----------
     treated : float
-        Treated share of customers ``a_C``, in (0, 1).
+        Treated share of customers ``a_C``, in (0, 1). Each arrival is treated
+        independently with this probability (no rounding); the estimators use
+        this probability as ``a_C``.
+
+    Examples
+    --------
+    >>> import marketsim as ms
+    >>> ms.CustomerSide(0.5).label
+    'customer-side (a_C=0.5)'
     """
 
     treated: float = 0.5
@@ -179,6 +228,10 @@ class CustomerSide(Design):
 
     def split(self, market: Market) -> CellSplit:
         return CellSplit.from_fractions(market, customers=self.treated, listings=1.0)
+
+    @property
+    def label(self) -> str:
+        return f"customer-side (a_C={self.treated:.3g})"
 
 
 @dataclass(frozen=True)
@@ -192,7 +245,15 @@ class ListingSide(Design):
         Treated share of listings ``a_L``, in (0, 1). Each type is stratified:
         ``floor(treated * n_j + 0.5)`` of its ``n_j`` listings are treated, so the
         realised share can differ slightly from ``treated``; estimators use the
-        realised share.
+        realised share. For example ``ListingSide(0.5)`` treats 2 of 3 listings of
+        a type with 3 (1.5 rounds up) and 1 of a type with 1 (0.5 rounds up).
+
+    Examples
+    --------
+    >>> import marketsim as ms
+    >>> split = ms.ListingSide(0.3).split(ms.scenarios.rehearsal_rooms())
+    >>> split.listing_count.tolist(), split.listing_treated.tolist()
+    ([21, 9, 7, 3], [False, True, False, True])
 
     Notes
     -----
@@ -208,6 +269,10 @@ class ListingSide(Design):
 
     def split(self, market: Market) -> CellSplit:
         return CellSplit.from_fractions(market, customers=1.0, listings=self.treated)
+
+    @property
+    def label(self) -> str:
+        return f"listing-side (a_L={self.treated:.3g})"
 
 
 @dataclass(frozen=True)
@@ -248,6 +313,10 @@ class TwoSided(Design):
         return CellSplit.from_fractions(market, customers=self.customers,
                                         listings=self.listings)
 
+    @property
+    def label(self) -> str:
+        return f"two-sided (a_C={self.customers:.3g}, a_L={self.listings:.3g})"
+
     @classmethod
     def for_balance(
         cls, balance: float, customers: float = 0.5, listings: float = 0.5
@@ -259,6 +328,13 @@ class TwoSided(Design):
         when demand is scarce (small balance), near listing-side when supply is
         scarce (large balance).
 
+        At the extremes a fraction can reach 1 exactly (in floating point
+        ``beta`` is below 1e-16 once balance exceeds about 37, giving
+        ``customers=1.0``: listing-side randomization), and with few listings the
+        stratified rounding can treat every listing (customer-side). Estimators
+        that need both sides randomized (:class:`~marketsim.TwoSidedCorrected`)
+        then do not fit the design and say so.
+
         Parameters
         ----------
         balance : float
@@ -266,9 +342,19 @@ class TwoSided(Design):
         customers, listings : float
             Base fractions ``a_C*`` and ``a_L*``, in (0, 1).
 
+        Returns
+        -------
+        TwoSided
+
         References
         ----------
         Johari et al., Management Science 68(10), 2022.
+
+        Examples
+        --------
+        >>> import marketsim as ms
+        >>> ms.TwoSided.for_balance(1.0).label        # beta = exp(-1) = 0.368
+        'two-sided (a_C=0.816, a_L=0.684)'
         """
         balance = check.number("balance", balance, low=0.0, low_open=True)
         check.number("customers", customers, low=0.0, high=1.0, low_open=True,

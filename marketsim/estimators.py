@@ -14,22 +14,38 @@ Metrics
 ``"revenue"``
     Revenue per unit time (needs :attr:`Market.price`).
 ``"conversion"``
-    Bookings per arriving customer: the bookings estimate divided by the
-    observed arrival rate of the window.
+    Bookings per arriving customer. ``Q_xy`` is then the bookings of group
+    ``xy`` per arrival, and the customer fraction ``a_C`` in the coefficients is
+    the *observed* share of arrivals that were treated (the design probability
+    when a group had no arrivals), so that the customer-side estimator is the
+    analyst's difference of conversion rates,
+    ``bookings_1 / arrivals_1 - bookings_0 / arrivals_0``.
 
 Naive standard error
 --------------------
-What an analyst who treats units as independent would report: the counts of
-each group are taken as independent Poisson (compound Poisson for revenue), so
-``Var(Q_xy) = sum(price**2 * bookings) / window**2``. Interference between units
-makes this wrong, which is exactly what a study measures (interval coverage).
+What an analyst who treats units as independent would report. For bookings and
+revenue per unit time the counts of each group are independent Poisson
+(compound Poisson for revenue), so ``Var(Q_xy) = sum(price**2 * bookings) /
+window**2``. For conversion each arriving customer is an independent unit whose
+outcome (no booking, or a booking with a control or a treated listing) is
+multinomial within its group: the customer-side standard error is the familiar
+``sqrt(p_1 (1 - p_1) / n_1 + p_0 (1 - p_0) / n_0)``. Interference between units
+makes these wrong, which is exactly what a study measures (interval coverage).
+
+Checks
+------
+Every formula (values and naive standard errors, all three metrics) is checked
+against arithmetic done by hand on a made-up ledger in
+``tests/test_estimators.py``; the unbiasedness of each estimator without
+competition and the bias patterns with it are checked by simulation in
+``tests/test_study.py``.
 """
 
 from __future__ import annotations
 
 import math
 from abc import ABC, abstractmethod
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -99,6 +115,84 @@ def group_rates(ledger: Ledger, metric: str = "bookings") -> tuple[np.ndarray, n
     return rates / scale, variances / scale**2
 
 
+@dataclass(frozen=True, eq=False)
+class GroupTotals:
+    """A ledger's bookings summed by (customer status, listing status) group.
+
+    Attributes
+    ----------
+    metric : str
+    totals : ndarray, shape (2, 2)
+        Sum of the metric's value of each booking (1, or the price for revenue).
+    squares : ndarray, shape (2, 2)
+        Sum of the squared values.
+    arrivals : ndarray, shape (2,)
+        Arrivals of control and treated customers in the window.
+    scale : float
+        Divisor turning totals into ``Q_xy``: the window, or for conversion the
+        number of arrivals (at least 1).
+    """
+
+    metric: str
+    totals: np.ndarray
+    squares: np.ndarray
+    arrivals: np.ndarray
+    scale: float
+
+    @classmethod
+    def of(cls, ledger: Ledger, metric: str = "bookings") -> GroupTotals:
+        """Sum ``ledger`` by group for ``metric``."""
+        check.choice("metric", metric, METRICS)
+        cells = ledger.cells
+        value = np.ones(cells.n_listing_cells)
+        if metric == "revenue":
+            if cells.price is None:
+                raise ValueError(
+                    "metric 'revenue' needs a market with prices: pass price=[...] to "
+                    "ms.Market, got a market without prices"
+                )
+            value = cells.price
+        bookings = np.asarray(ledger.bookings, dtype=float)
+        totals = np.zeros((2, 2))
+        squares = np.zeros((2, 2))
+        customer = cells.split.customer_treated.astype(int)
+        listing = cells.split.listing_treated.astype(int)
+        np.add.at(totals, (customer[:, None], listing[None, :]), bookings * value[None, :])
+        np.add.at(squares, (customer[:, None], listing[None, :]),
+                  bookings * (value**2)[None, :])
+        arrivals = np.zeros(2)
+        np.add.at(arrivals, customer, np.asarray(ledger.arrivals, dtype=float))
+        scale = ledger.window if metric != "conversion" else max(ledger.arrival_count, 1.0)
+        return cls(metric, totals, squares, arrivals, float(scale))
+
+    def combine(self, weights: np.ndarray) -> Estimate:
+        """``sum(weights * Q)`` with its naive standard error (see the module notes)."""
+        value = float(np.sum(weights * self.totals)) / self.scale
+        if self.metric != "conversion":
+            variance = float(np.sum(weights**2 * self.squares))
+        else:  # multinomial outcome per arriving customer, within each customer group
+            variance = 0.0
+            for x in (0, 1):
+                if self.arrivals[x] > 0:
+                    spread = float(np.sum(weights[x] ** 2 * self.squares[x]))
+                    mean = float(np.sum(weights[x] * self.totals[x]))
+                    variance += max(spread - mean**2 / self.arrivals[x], 0.0)
+        return Estimate(value, math.sqrt(variance) / self.scale)
+
+    def analysis_split(self, split: CellSplit) -> CellSplit:
+        """The split at which coefficients are evaluated: ``split`` itself, except for
+        conversion, where the treated share of customers is the observed share of
+        arrivals (kept as designed when a group had no arrivals)."""
+        designed = split.customer_fraction
+        if self.metric != "conversion" or not (self.arrivals > 0).all() \
+                or not 0.0 < designed < 1.0:
+            return split
+        observed = self.arrivals[1] / self.arrivals.sum()
+        treated = split.customer_treated
+        ratio = np.where(treated, observed / designed, (1.0 - observed) / (1.0 - designed))
+        return replace(split, customer_share=split.customer_share * ratio)
+
+
 def metric_rate(ledger: Ledger, metric: str = "bookings") -> float:
     """The metric of the whole market in the window (e.g. total bookings per unit
     time); the difference of this between the two global worlds is the global
@@ -110,9 +204,34 @@ def metric_rate(ledger: Ledger, metric: str = "bookings") -> float:
 class Estimator(ABC):
     """Base class of estimators that are linear in the group rates ``Q_xy``.
 
-    Subclasses implement :meth:`weights`; they raise ``ValueError`` when the
-    design does not fit (for example a listing-side estimator on a design that
-    treats no listings, or all of them).
+    A subclass implements :meth:`weights`: the 2 x 2 matrix ``c`` with
+    ``estimate = sum over x, y of c[x, y] * Q_xy`` (row = customer status,
+    column = listing status, 0 = control, 1 = treated), computed from the
+    design's treated fractions. It raises ``ValueError`` when the design does
+    not fit (for example a listing-side estimator on a design that treats no
+    listings, or all of them). The base class supplies :meth:`estimate` (value
+    and naive standard error, for every metric) and a :attr:`name`. Keep
+    subclasses picklable (plain classes or frozen dataclasses) so that
+    :class:`marketsim.Study` can use them in worker processes.
+
+    Examples
+    --------
+    Compare treated and control listings among treated customers only:
+
+    >>> import numpy as np
+    >>> import marketsim as ms
+    >>> class AmongTreatedCustomers(ms.Estimator):
+    ...     def weights(self, split, market):
+    ...         a_c, a_l = split.customer_fraction, split.listing_fraction
+    ...         if not (0 < a_c and 0 < a_l < 1):
+    ...             raise ValueError(f"{self.name} needs 0 < a_L < 1, got a_L = {a_l:.3g}")
+    ...         return np.array([[0.0, 0.0], [-1 / (a_c * (1 - a_l)), 1 / (a_c * a_l)]])
+    >>> market = ms.scenarios.rehearsal_rooms()
+    >>> ledger = ms.simulate(market, ms.scenarios.instant_confirmation(),
+    ...                      ms.TwoSided(0.5, 0.5), horizon=50.0, seed=3)
+    >>> estimate = AmongTreatedCustomers().estimate(ledger)
+    >>> estimate.standard_error > 0
+    True
     """
 
     @property
@@ -137,10 +256,9 @@ class Estimator(ABC):
         -------
         Estimate
         """
-        weights = self.weights(ledger.cells.split, ledger.cells.market)
-        rates, variances = group_rates(ledger, metric)
-        value = float(np.sum(weights * rates))
-        return Estimate(value, math.sqrt(float(np.sum(weights**2 * variances))))
+        groups = GroupTotals.of(ledger, metric)
+        split = groups.analysis_split(ledger.cells.split)
+        return groups.combine(self.weights(split, ledger.cells.market))
 
     def __repr__(self) -> str:
         return self.name
@@ -149,10 +267,12 @@ class Estimator(ABC):
 def _fraction(split: CellSplit, side: str, estimator: str) -> float:
     value = split.customer_fraction if side == "customers" else split.listing_fraction
     if not 0.0 < value < 1.0:
+        symbol = "a_C" if side == "customers" else "a_L"
+        extent = "none" if value <= 0.0 else "all"
         raise ValueError(
             f"{estimator} needs a design that treats some but not all {side} "
-            f"(treated share strictly between 0 and 1), got a design treating "
-            f"{value:.4g} of {side}"
+            f"(0 < {symbol} < 1), got {symbol} = {value:.4g} (the design treats {extent} "
+            f"of the {side})"
         )
     return value
 

@@ -114,7 +114,7 @@ class Market:
         if abs(shares.sum() - 1.0) > SHARE_TOLERANCE:
             raise ValueError(
                 f"customer_shares must sum to 1 (tolerance {SHARE_TOLERANCE:g}), "
-                f"got sum {shares.sum()!r}"
+                f"got sum {float(shares.sum())!r}"
             )
         pair = (n_customer, n_listing)
         pair_text = "(n_customer_types, n_listing_types)"
@@ -171,7 +171,7 @@ class Market:
     def with_balance(self, balance: float) -> Market:
         """The same market with the arrival rate rescaled to reach ``balance``."""
         target = check.number("balance", balance, low=0.0, low_open=True)
-        return self._replace(arrival_rate=target * self.release_capacity)
+        return self.replace(arrival_rate=target * self.release_capacity)
 
     def scaled(self, factor: float) -> Market:
         """The market with ``factor`` times the listings and arrivals (same balance).
@@ -180,10 +180,23 @@ class Market:
         """
         factor = check.number("factor", factor, low=0.0, low_open=True)
         counts = np.maximum(1, np.rint(self.listing_counts * factor)).astype(np.int64)
-        grown = self._replace(listing_counts=counts)
+        grown = self.replace(listing_counts=counts)
         return grown.with_balance(self.balance)
 
-    def _replace(self, **changes: object) -> Market:
+    def replace(self, **changes: object) -> Market:
+        """A copy of the market with some parameters changed (and validated again).
+
+        Parameters
+        ----------
+        **changes
+            Any constructor argument, e.g. ``mean_busy_time=[1.0, 2.0]``.
+
+        Examples
+        --------
+        >>> import marketsim as ms
+        >>> ms.scenarios.rehearsal_rooms().replace(arrival_rate=8.0).arrival_rate
+        8.0
+        """
         fields = {
             "listing_counts": self.listing_counts,
             "mean_busy_time": self.mean_busy_time,
@@ -196,6 +209,11 @@ class Market:
             "customer_types": self.customer_types,
             "price": self.price,
         }
+        unknown = sorted(set(changes) - set(fields))
+        if unknown:
+            raise ValueError(
+                f"replace takes Market parameters ({', '.join(fields)}), got {unknown[0]!r}"
+            )
         fields.update(changes)
         return Market(**fields)
 
@@ -253,7 +271,8 @@ def _listing_counts(value: object) -> np.ndarray:
             check.whole_number(f"listing_counts[{k}]", _as_int_like(item), low=1)
         except ValueError:
             raise ValueError(
-                f"listing_counts must contain whole numbers >= 1, got {item!r} at index {k}"
+                f"listing_counts must contain whole numbers >= 1, got {check._shown(item)} "
+                f"at index {k}"
             ) from None
     counts = np.array([int(x) for x in raw], dtype=np.int64)
     counts.flags.writeable = False
@@ -338,7 +357,7 @@ class Treatment:
             where = tuple(int(i) for i in np.argwhere(treated_consideration > 1.0)[0])
             raise ValueError(
                 "consideration_factor times the market's consideration must be <= 1, "
-                f"got {treated_consideration[where]!r} for pair {where}"
+                f"got {float(treated_consideration[where])!r} for pair {where}"
             )
         return market.utility + shift, treated_consideration, market.outside_utility + outside
 

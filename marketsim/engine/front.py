@@ -52,8 +52,16 @@ def simulate(
     start : {"empty", "steady"} or array_like of int, shape (n_listing_cells,)
         Availability at time 0: ``"empty"`` means every listing available;
         ``"steady"`` the large-market steady state rounded to whole listings
-        (a warm start that shortens the burn-in needed); or explicit counts
-        per listing cell, each between 0 and the cell's size.
+        (:func:`marketsim.meanfield.steady_state`; a warm start that shortens
+        the burn-in needed); or explicit counts per listing cell, each between
+        0 and the cell's size. Measured on the rehearsal-room scenario (mean
+        busy times 2 and 3 hours): from ``"empty"`` the expected booking rate
+        starts 30% high and needs about 6 hours of burn-in to come within 1%
+        of its long-run value (10 hours for 0.1%; large-market path, confirmed
+        by simulation); from ``"steady"`` the mean over replications is within
+        Monte Carlo error (about 1.5%) of the long-run value from the first
+        quarter hour, at 40, 400 and 4,000 listings, so a burn-in of half a
+        mean busy time is plenty.
     bins : int, optional
         Also count bookings and arrivals in this many equal time bins of the window.
 
@@ -135,7 +143,11 @@ def starting_availability(cells: MarketCells, start: StartLike) -> np.ndarray:
             f"= {shape} ({', '.join(cells.listing_labels)}), got shape {values.shape}"
         )
     if not np.issubdtype(values.dtype, np.integer):
-        whole = np.isfinite(values.astype(float)) & (values.astype(float) % 1 == 0)
+        try:
+            numeric = values.astype(float)
+        except (TypeError, ValueError):
+            raise ValueError(f"start must contain whole numbers, got {values.tolist()}") from None
+        whole = np.isfinite(numeric) & (numeric % 1 == 0)
         if not whole.all():
             raise ValueError(f"start must contain whole numbers, got {values.tolist()}")
     counts = values.astype(np.int64)

@@ -1,0 +1,150 @@
+"""Relative bias against market balance, from :func:`marketsim.meanfield.sweep_balance`."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+import pandas as pd
+
+REQUIRED_COLUMNS = ("design", "estimator", "balance", "relative_bias")
+
+
+def plot_balance_sweep(
+    frame: pd.DataFrame,
+    *,
+    designs: Sequence[str] | None = None,
+    estimators: Sequence[str] | None = None,
+    ylim: tuple[float, float] | None = None,
+    title: str | None = None,
+    columns: int | None = None,
+):
+    """Relative bias of each estimator against balance (log axis), one panel per design.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        A sweep table with at least the columns ``design, estimator, balance,
+        relative_bias`` (as returned by :func:`marketsim.meanfield.sweep_balance`).
+    designs, estimators : sequence of str, optional
+        Labels to draw, in this order (default: all, in order of appearance).
+    ylim : (float, float), optional
+        Limits of the relative-bias axis (default: fitted to the data). Relative
+        bias can be huge where the global effect is close to 0, so limits help.
+    title : str, optional
+        Title of the figure.
+    columns : int, optional
+        Panels per row (default: all in one row up to 3 designs, 2 x 2 for 4,
+        rows of 3 beyond).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Relative bias 0 (an unbiased estimator) is marked by a horizontal line;
+        a gap in a line means the estimator does not fit the design there.
+
+    Examples
+    --------
+    >>> import marketsim as ms
+    >>> from marketsim.plotting.sweep import plot_balance_sweep
+    >>> table = ms.meanfield.sweep_balance(
+    ...     ms.scenarios.rehearsal_rooms(), ms.Treatment(utility_shift=0.3),
+    ...     [ms.CustomerSide(0.5), ms.ListingSide(0.5)], balances=[0.1, 1.0, 10.0])
+    >>> figure = plot_balance_sweep(table, ylim=(-1, 3))
+    >>> len(figure.axes)
+    2
+    """
+    import matplotlib.pyplot as plt
+    from matplotlib.ticker import PercentFormatter
+
+    if not isinstance(frame, pd.DataFrame):
+        raise ValueError(
+            f"frame must be a pandas.DataFrame from ms.meanfield.sweep_balance, got "
+            f"{type(frame).__name__}"
+        )
+    missing = [c for c in REQUIRED_COLUMNS if c not in frame.columns]
+    if missing:
+        raise ValueError(
+            f"frame must have the columns {', '.join(REQUIRED_COLUMNS)}, got a frame "
+            f"without {', '.join(missing)}"
+        )
+    if frame.empty:
+        raise ValueError("frame must have at least one row, got an empty table")
+    if columns is not None and (isinstance(columns, bool) or not isinstance(columns, int)
+                                or columns < 1):
+        raise ValueError(f"columns must be a whole number >= 1 or None, got {columns!r}")
+    design_names = _pick("designs", designs, list(dict.fromkeys(frame["design"])))
+    estimator_names = _pick("estimators", estimators,
+                            list(dict.fromkeys(frame["estimator"])))
+
+    # One colour per estimator, the same in every panel.
+    cycle = plt.rcParams["axes.prop_cycle"].by_key().get("color", ["C0"])
+    colours = {name: cycle[k % len(cycle)] for k, name in enumerate(estimator_names)}
+    n_panels = len(design_names)
+    if columns is None:
+        columns = 2 if n_panels == 4 else 3
+    n_cols = min(columns, n_panels)
+    n_rows = math.ceil(n_panels / n_cols)
+    figure, axes = plt.subplots(n_rows, n_cols, figsize=(4.2 * n_cols, 3.4 * n_rows),
+                                sharex=True, sharey=True, squeeze=False)
+    for k, design in enumerate(design_names):
+        ax = axes[k // n_cols][k % n_cols]
+        part = frame[frame["design"] == design]
+        for estimator in estimator_names:
+            rows = part[part["estimator"] == estimator].sort_values("balance")
+            if rows.empty:
+                continue
+            # Reindex on every balance of the panel so that points where the
+            # estimator does not fit show as gaps instead of joined lines.
+            grid = sorted(part["balance"].unique())
+            values = rows.set_index("balance")["relative_bias"].reindex(grid)
+            ax.plot(grid, values.to_numpy(), marker="o", markersize=3, label=estimator,
+                    color=colours[estimator])
+        ax.axhline(0.0, color="black", linewidth=0.8)
+        ax.set_xscale("log")
+        ax.set_title(design, fontsize="medium")
+        ax.yaxis.set_major_formatter(PercentFormatter(xmax=1.0))
+        ax.grid(True, which="major", alpha=0.3)
+        if k // n_cols == n_rows - 1 or k + n_cols >= n_panels:
+            ax.set_xlabel("balance (arrivals / release capacity)")
+        if k % n_cols == 0:
+            ax.set_ylabel("relative bias")
+        ax.tick_params(labelbottom=True)
+    for k in range(n_panels, n_rows * n_cols):
+        axes[k // n_cols][k % n_cols].set_visible(False)
+    if ylim is not None:
+        axes[0][0].set_ylim(*ylim)
+    handles, labels = [], []
+    for ax in figure.axes:
+        for handle, label in zip(*ax.get_legend_handles_labels()):
+            if label not in labels:
+                handles.append(handle)
+                labels.append(label)
+    figure.legend(handles, labels, loc="lower center", ncol=min(len(labels), 3),
+                  frameon=False)
+    if title is not None:
+        figure.suptitle(title)
+    legend_rows = math.ceil(len(labels) / 3)
+    figure.tight_layout(rect=(0, 0.06 * legend_rows / n_rows, 1, 1))
+    for ax in figure.axes:
+        if not ax.get_visible():
+            figure.delaxes(ax)
+    return figure
+
+
+def _pick(name: str, chosen: Sequence[str] | None, available: list[str]) -> list[str]:
+    if chosen is None:
+        return available
+    if isinstance(chosen, str):
+        chosen = [chosen]
+    chosen = list(chosen)
+    if not chosen:
+        raise ValueError(f"{name} must name at least one label, got []")
+    for item in chosen:
+        if item not in available:
+            listed = ", ".join(repr(a) for a in available)
+            raise ValueError(f"{name} must be among {listed}, got {item!r}")
+    return chosen
+
+
+__all__ = ["plot_balance_sweep"]

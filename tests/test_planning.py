@@ -1,0 +1,207 @@
+"""Planning: sweeps, horizon and sample size, power with bias, design choice."""
+
+import math
+
+import numpy as np
+import pytest
+from statsmodels.stats.power import NormalIndPower
+
+import marketsim as ms
+from marketsim.planning import choose_design, plan_horizon, power_table, sweep
+from marketsim.power import power_with_bias, sample_size_per_group
+
+
+def uncongested_market() -> ms.Market:
+    """One customer type, one listing type, supply far from binding (balance 0.001):
+    no competition, so customers are independent units. Booking probability
+    about 0.5 w / (w0 + 0.5 w) = 0.3 in control."""
+    return ms.Market(listing_counts=[200], mean_busy_time=[1.0], arrival_rate=0.2,
+                     customer_shares=[1.0], consideration=0.5, utility=0.0,
+                     outside_utility=math.log(0.5 / 0.3 - 0.5))
+
+
+# ----------------------------------------------------------------- sample size
+def test_sample_size_without_competition_matches_two_sample_formula():
+    """Without competition, the horizon recommended to detect an effect, in customers
+    per group, matches the two-sample normal formula n = (z_{1-a/2} + z_{1-b})^2 2 s^2 / d^2,
+    statsmodels' NormalIndPower (reference library) and van Belle's n ~ 16 s^2 / d^2
+    (Statistical Rules of Thumb, 2nd ed., 2008) within Monte Carlo error."""
+    market = uncongested_market()
+    treatment = ms.Treatment(utility_shift=0.2)
+    replications = 300
+    plan = plan_horizon(market, treatment, ms.Arm(ms.CustomerSide(0.5),
+                                                  ms.CustomerSideEstimator()),
+                        pilot_horizon=10_000.0, metric="conversion", minimum_effect=0.04,
+                        replications=replications, seed=5, progress=False)
+    row = plan.table.iloc[0]
+    assert row["scaling_holds"]
+    per_group = 0.5 * row["expected_arrivals"]
+    # sigma^2 of one customer's booking indicator, pooled over the two groups; the
+    # conversion levels of the two worlds in the large-market limit.
+    control = ms.meanfield.steady_state(market).booking_rate / market.arrival_rate
+    treated = ms.meanfield.steady_state(market, treatment, ms.GlobalTreatment()).booking_rate \
+        / market.arrival_rate
+    sigma = math.sqrt((control * (1 - control) + treated * (1 - treated)) / 2)
+    formula = sample_size_per_group(sigma, 0.04)
+    reference = NormalIndPower().solve_power(effect_size=0.04 / sigma, alpha=0.05, power=0.8)
+    rule_of_thumb = 16 * sigma**2 / 0.04**2
+    # n is proportional to sd^2: its relative Monte Carlo error is twice that of sd.
+    relative_error = 2 * row["sd_check_mc_se"] / row["sd_check"]
+    for expected, slack in ((formula, 0.0), (reference, 0.0), (rule_of_thumb, 0.03)):
+        assert abs(per_group / expected - 1) < 3 * relative_error + slack
+
+
+def test_recommended_horizon_achieves_target_when_resimulated():
+    """Re-simulating at the recommended horizon gives the target standard deviation
+    within Monte Carlo error (the 1/sqrt(horizon) projection is checked, not assumed)."""
+    market = ms.scenarios.rehearsal_rooms()
+    treatment = ms.scenarios.instant_confirmation()
+    arm = ms.Arm(ms.ListingSide(0.5))
+    plan = plan_horizon(market, treatment, arm, pilot_horizon=25.0, burn_in=20.0,
+                        target_se=0.1, replications=200, seed=2, progress=False)
+    row = plan.table.iloc[0]
+    assert row["reachable"] and row["recommended_horizon"] > 100.0
+    check = ms.Study(market, treatment, [arm], horizon=row["recommended_horizon"],
+                     burn_in=20.0).run(200, seed=3, progress=False)
+    achieved = check.summary["sd"].iloc[0]
+    # relative errors: the plan's sd estimate and the check's sd estimate.
+    tolerance = 3 * math.hypot(row["sd_check_mc_se"] / row["sd_check"],
+                               1 / math.sqrt(2 * 199))
+    assert abs(achieved / 0.1 - 1) < tolerance
+
+
+def test_bias_floor_makes_small_rmse_unreachable():
+    """Bias does not shrink with time: when the target RMSE is below the bias the plan
+    says so plainly and recommends no horizon."""
+    market = ms.scenarios.rehearsal_rooms(balance=4.0)
+    treatment = ms.scenarios.instant_confirmation()
+    plan = plan_horizon(market, treatment, ms.CustomerSide(0.5), pilot_horizon=20.0,
+                        burn_in=10.0, target_rmse=0.05, replications=40, seed=4,
+                        progress=False)
+    row = plan.table.iloc[0]
+    assert abs(row["bias"]) > 0.05 + 3 * row["bias_mc_se"]
+    assert not row["reachable"] and math.isnan(row["recommended_horizon"])
+    assert "unreachable" in plan.report()
+    assert any("bias floor" in note for note in plan.notes)
+
+
+def test_plan_needs_exactly_one_target():
+    market = ms.scenarios.rehearsal_rooms()
+    with pytest.raises(ValueError, match="exactly one of target_se, minimum_effect and "
+                                         "target_rmse, got none"):
+        plan_horizon(market, ms.scenarios.instant_confirmation(), ms.CustomerSide(0.5),
+                     pilot_horizon=10.0)
+    with pytest.raises(ValueError, match="got target_se, target_rmse"):
+        plan_horizon(market, ms.scenarios.instant_confirmation(), ms.CustomerSide(0.5),
+                     pilot_horizon=10.0, target_se=0.1, target_rmse=0.2)
+    with pytest.raises(ValueError, match="check_factor must be a finite number > 1"):
+        plan_horizon(market, ms.scenarios.instant_confirmation(), ms.CustomerSide(0.5),
+                     pilot_horizon=10.0, target_se=0.1, check_factor=1.0)
+
+
+# ----------------------------------------------------------------- sweeps
+def test_large_market_sweep_rows_and_columns():
+    market = ms.scenarios.rehearsal_rooms()
+    treatment = ms.scenarios.instant_confirmation()
+    table = sweep(market, treatment, [ms.CustomerSide(0.5), ms.ListingSide(0.5)],
+                  values=[0.1, 1.0, 10.0])
+    assert list(table["value"].unique()) == [0.1, 1.0, 10.0]
+    assert np.allclose(table["balance"], table["value"])
+    assert table["sd"].isna().all()
+    assert np.allclose(table["rmse"], table["bias"].abs())
+    per_point = table.groupby("value").size()
+    assert (per_point == per_point.iloc[0]).all()
+    # The sweep agrees with the large-market model point by point.
+    direct = ms.meanfield.expected_estimates(market.with_balance(10.0), treatment,
+                                             ms.ListingSide(0.5))
+    row = table[(table["value"] == 10.0) & (table["estimator"] == "listing-side")]
+    assert row["bias"].iloc[0] == pytest.approx(direct["bias"].iloc[0], rel=1e-12)
+
+
+def test_sweep_over_other_parameters_and_balance_following_designs():
+    market = ms.scenarios.rehearsal_rooms()
+    treatment = ms.scenarios.instant_confirmation()
+    by_rate = sweep(market, treatment, [ms.TwoSided.for_balance],
+                    values=[4.0, 16.0, 64.0], parameter="arrival_rate")
+    assert by_rate["parameter"].iloc[0] == "arrival_rate"
+    assert np.allclose(by_rate.groupby("value")["balance"].first().to_numpy(),
+                       [4.0 / 18.333333333, 16.0 / 18.333333333, 64.0 / 18.333333333])
+    assert by_rate["arm"].nunique() == 1
+
+    def longer_sessions(m, factor):
+        return m.replace(mean_busy_time=m.mean_busy_time * factor)
+
+    custom = sweep(market, treatment, [ms.CustomerSide(0.5)], values=[0.5, 2.0],
+                   parameter=longer_sessions)
+    assert custom["parameter"].iloc[0] == "longer_sessions"
+    assert custom["balance"].iloc[1] == pytest.approx(4 * custom["balance"].iloc[0])
+
+
+def test_simulation_sweep_has_monte_carlo_columns():
+    market = ms.scenarios.rehearsal_rooms()
+    table = sweep(market, ms.scenarios.instant_confirmation(), [ms.CustomerSide(0.5)],
+                  values=[0.5, 2.0], mode="simulation", horizon=30.0, burn_in=10.0,
+                  replications=10, seed=1, progress=False)
+    assert {"bias_mc_se", "coverage", "replications"} <= set(table.columns)
+    assert (table["sd"] > 0).all() and (table["replications"] == 10).all()
+    again = sweep(market, ms.scenarios.instant_confirmation(), [ms.CustomerSide(0.5)],
+                  values=[0.5, 2.0], mode="simulation", horizon=30.0, burn_in=10.0,
+                  replications=10, seed=1, progress=False)
+    assert table.equals(again)
+
+
+@pytest.mark.parametrize("kwargs, message", [
+    ({"mode": "fast"}, "mode must be one of 'large-market', 'simulation', got 'fast'"),
+    ({"parameter": "colour"}, "parameter must be one of 'balance', 'arrival_rate'"),
+    ({"mode": "simulation"}, "mode 'simulation' needs horizon and replications"),
+    ({"values": []}, "values must be a non-empty list, got []"),
+])
+def test_sweep_bad_input(kwargs, message):
+    arguments = {"values": [1.0], **kwargs}
+    with pytest.raises(ValueError, match=message.replace("(", r"\(").replace("[", r"\[")):
+        sweep(ms.scenarios.rehearsal_rooms(), ms.scenarios.instant_confirmation(),
+              [ms.CustomerSide(0.5)], **arguments)
+
+
+def test_sweep_plot_panels():
+    """Large-market sweeps have no noise: bias and relative bias only."""
+    from marketsim.plotting.planning import plot_sweep
+
+    table = sweep(ms.scenarios.rehearsal_rooms(), ms.scenarios.instant_confirmation(),
+                  [ms.CustomerSide(0.5)], values=[0.1, 1.0, 10.0])
+    figure = plot_sweep(table)
+    assert [axis.get_title() for axis in figure.axes] == ["bias", "relative bias"]
+    assert figure.axes[0].get_xscale() == "log"
+    simulated = sweep(ms.scenarios.rehearsal_rooms(), ms.scenarios.instant_confirmation(),
+                      [ms.CustomerSide(0.5)], values=[0.5, 2.0], mode="simulation",
+                      horizon=20.0, replications=4, seed=1, progress=False)
+    figure = plot_sweep(simulated)
+    assert [axis.get_title() for axis in figure.axes] == ["bias", "standard deviation", "RMSE"]
+
+
+# ----------------------------------------------------------------- power and design
+def test_power_table_follows_the_closed_form():
+    market = ms.scenarios.rehearsal_rooms()
+    result = ms.Study(market, ms.scenarios.instant_confirmation(),
+                      [ms.CustomerSide(0.5), ms.ListingSide(0.5)], horizon=40.0,
+                      burn_in=10.0).run(20, seed=9, progress=False)
+    table = power_table(result)
+    assert len(table) == len(result.summary)
+    for row, summary in zip(table.itertuples(), result.summary.itertuples()):
+        expected = power_with_bias(summary.truth, summary.bias, summary.sd)
+        assert row.power == pytest.approx(expected.power)
+        assert 0.0 <= row.false_positive_rate <= 1.0
+
+
+def test_design_choice_recommends_smallest_rmse():
+    market = ms.scenarios.rehearsal_rooms()
+    choice = choose_design(market, ms.scenarios.instant_confirmation(), horizon=30.0,
+                           burn_in=10.0, candidates=[ms.CustomerSide(0.5), ms.ListingSide(0.5),
+                                                     ms.TwoSided(0.5, 0.5)],
+                           replications=12, seed=3, progress=False)
+    assert choice.recommended["rmse"] == choice.table["rmse"].min()
+    assert list(choice.table["rank"]) == list(range(1, len(choice.table) + 1))
+    assert ((choice.table["bias_share"] >= 0) & (choice.table["bias_share"] <= 1)).all()
+    assert "Recommended:" in choice.report()
+    figure = choice.plot()
+    assert figure.axes
