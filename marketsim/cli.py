@@ -1,4 +1,4 @@
-"""Command line: ``marketsim demo`` runs the built-in scenario end to end."""
+"""Command line: ``marketsim demo`` runs the whole job on the built-in scenario."""
 
 from __future__ import annotations
 
@@ -22,7 +22,7 @@ def main(argv: Sequence[str] | None = None) -> int:
                       help=f"Monte Carlo replications, >= 2 (default {REPLICATIONS})")
     demo.add_argument("--seed", type=int, default=SEED, help=f"random seed (default {SEED})")
     demo.add_argument("--out", default=OUT,
-                      help=f"folder for the figures (default ./{OUT})")
+                      help=f"folder for the report and its figures (default ./{OUT})")
     demo.add_argument("--workers", type=int, default=None,
                       help="worker processes (default: usable cores, at most 4)")
     args = parser.parse_args(argv)

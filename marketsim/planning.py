@@ -322,7 +322,8 @@ class HorizonPlan:
                 lines.append(
                     f"- {row.estimator}: run {row.recommended_horizon:.4g} time units "
                     f"(about {row.expected_arrivals:.0f} arrivals); bias floor "
-                    f"{row.bias:+.3g} (Monte Carlo s.e. {row.bias_mc_se:.2g}); power "
+                    f"{row.bias:+.3g} (Monte Carlo s.e. {row.bias_mc_se:.2g}); at the true effect "
+                    f"({row.truth:.3g}) power "
                     f"{row.power:.2f}, wrong-sign risk {row.type_s:.2g}, exaggeration "
                     f"x{row.type_m:.2f}."
                 )

@@ -37,8 +37,19 @@ def seed_sequence(seed: SeedLike) -> np.random.SeedSequence:
 
 
 def spawn(seed: SeedLike, count: int) -> list[np.random.SeedSequence]:
-    """``count`` independent child seed sequences of ``seed``."""
-    return seed_sequence(seed).spawn(count)
+    """``count`` independent child seed sequences of ``seed``.
+
+    Unlike :meth:`numpy.random.SeedSequence.spawn`, this does not advance a
+    ``SeedSequence`` passed in: child ``k`` always has spawn key
+    ``seed.spawn_key + (k,)``, so the same ``SeedSequence`` gives the same
+    children every time, as the same int does.
+    """
+    parent = seed_sequence(seed)
+    return [
+        np.random.SeedSequence(parent.entropy, spawn_key=(*parent.spawn_key, k),
+                               pool_size=parent.pool_size)
+        for k in range(count)
+    ]
 
 
 def engine_streams(seed: SeedLike) -> tuple[np.random.Generator, ...]:

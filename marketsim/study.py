@@ -227,20 +227,15 @@ class _Outcome:
     events: int
 
 
-def _seed(entropy: object, spawn_key: tuple[int, ...], pool_size: int) -> np.random.SeedSequence:
-    """A fresh SeedSequence (``spawn`` mutates its object, so never reuse one)."""
-    return np.random.SeedSequence(entropy, spawn_key=spawn_key, pool_size=pool_size)
-
-
 def _replicate(plan: _Plan, root: tuple, index: int) -> _Outcome:
     """Run replication ``index``: both global worlds and every arm."""
     entropy, key, pool = root
-    world_key = (*key, index, 0)
-    runs = {"horizon": plan.horizon, "burn_in": plan.burn_in}
-    control = run_cells(plan.control, seed=_seed(entropy, world_key, pool),
-                        start=plan.control_start, **runs)
-    treated = run_cells(plan.treated, seed=_seed(entropy, world_key, pool),
-                        start=plan.treated_start, **runs)
+    # Every run of the replication shares this seed (common random numbers);
+    # marketsim.randomness never advances a SeedSequence, so reusing it is safe.
+    shared = np.random.SeedSequence(entropy, spawn_key=(*key, index, 0), pool_size=pool)
+    runs = {"horizon": plan.horizon, "burn_in": plan.burn_in, "seed": shared}
+    control = run_cells(plan.control, start=plan.control_start, **runs)
+    treated = run_cells(plan.treated, start=plan.treated_start, **runs)
     levels = np.empty((len(plan.metrics), 2))
     for m, metric in enumerate(plan.metrics):
         levels[m, 0] = metric_rate(control, metric)
@@ -250,8 +245,7 @@ def _replicate(plan: _Plan, root: tuple, index: int) -> _Outcome:
     events = control.events + treated.events
     row = 0
     for a, cells in enumerate(plan.arm_cells):
-        ledger = run_cells(cells, seed=_seed(entropy, world_key, pool),
-                           start=plan.arm_starts[a], **runs)
+        ledger = run_cells(cells, start=plan.arm_starts[a], **runs)
         events += ledger.events
         groups = [GroupTotals.of(ledger, metric) for metric in plan.metrics]
         splits = [g.analysis_split(cells.split) for g in groups]

@@ -134,3 +134,12 @@ def test_common_random_numbers_across_worlds():
     np.testing.assert_array_equal(control.arrivals, treated.arrivals)
     np.testing.assert_array_equal(control.bin_arrivals, treated.bin_arrivals)
     assert not np.array_equal(control.bookings, treated.bookings)
+
+
+def test_reused_seed_sequence_gives_the_same_streams():
+    """A SeedSequence passed twice is not advanced: same streams, like an int."""
+    sequence = np.random.SeedSequence(2024)
+    first = [g.random() for g in engine_streams(sequence)]
+    second = [g.random() for g in engine_streams(sequence)]
+    assert first == second
+    assert [c.spawn_key for c in spawn(sequence, 2)] == [(0,), (1,)]

@@ -9,4 +9,10 @@ def test_demo_runs(capsys, tmp_path):
     assert "global treatment effect" in out
     assert "two-sided for balance" in out and "coverage" in out
     assert "Caveat:" in out
-    assert (tmp_path / "study.png").stat().st_size > 0
+    for figure in ("study.png", "balance_sweep.png", "design_choice.png"):
+        assert (tmp_path / figure).stat().st_size > 0
+    report = (tmp_path / "report.md").read_text()
+    for heading in ("How biased and how noisy", "balance of demand and supply",
+                    "Which design", "What these numbers are worth"):
+        assert heading in report
+    assert "Report:" in out
