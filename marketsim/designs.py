@@ -22,12 +22,16 @@ from __future__ import annotations
 import math
 from abc import ABC, abstractmethod
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 from numpy.typing import ArrayLike
 
 from marketsim import _validation as check
 from marketsim.market import Market
+
+if TYPE_CHECKING:
+    from marketsim.estimators import Estimator
 
 
 @dataclass(frozen=True, eq=False)
@@ -176,6 +180,17 @@ class Design(ABC):
         """Short name used in tables and plots (the ``repr`` unless overridden)."""
         return repr(self)
 
+    def default_estimators(self) -> tuple[Estimator, ...]:
+        """Estimators a study scores on this design when none are given.
+
+        Every built-in estimator unless a design says otherwise; those that do
+        not fit the design's split are left out when the study is set up
+        (:func:`marketsim.estimators.default_estimators`).
+        """
+        from marketsim.estimators import all_estimators
+
+        return all_estimators()
+
 
 @dataclass(frozen=True)
 class GlobalControl(Design):
@@ -229,6 +244,11 @@ class CustomerSide(Design):
     def split(self, market: Market) -> CellSplit:
         return CellSplit.from_fractions(market, customers=self.treated, listings=1.0)
 
+    def default_estimators(self) -> tuple[Estimator, ...]:
+        from marketsim.estimators import CustomerSideEstimator
+
+        return (CustomerSideEstimator(),)
+
     @property
     def label(self) -> str:
         return f"customer-side (a_C={self.treated:.3g})"
@@ -269,6 +289,11 @@ class ListingSide(Design):
 
     def split(self, market: Market) -> CellSplit:
         return CellSplit.from_fractions(market, customers=1.0, listings=self.treated)
+
+    def default_estimators(self) -> tuple[Estimator, ...]:
+        from marketsim.estimators import ListingSideEstimator
+
+        return (ListingSideEstimator(),)
 
     @property
     def label(self) -> str:
@@ -312,6 +337,15 @@ class TwoSided(Design):
     def split(self, market: Market) -> CellSplit:
         return CellSplit.from_fractions(market, customers=self.customers,
                                         listings=self.listings)
+
+    def default_estimators(self) -> tuple[Estimator, ...]:
+        """The two-sided estimators (naive, corrected with k = 1 and 2). The
+        one-sided contrasts of a two-sided experiment measure a partial exposure
+        (treated customers see the feature on only a share of the listings); pass
+        them explicitly to score them."""
+        from marketsim.estimators import TwoSidedCorrected, TwoSidedNaive
+
+        return (TwoSidedNaive(), TwoSidedCorrected(k=1), TwoSidedCorrected(k=2))
 
     @property
     def label(self) -> str:

@@ -50,7 +50,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from marketsim import _validation as check
-from marketsim.designs import CellSplit
+from marketsim.designs import CellSplit, Design
 from marketsim.ledger import Ledger
 from marketsim.market import Market
 
@@ -399,6 +399,39 @@ def all_estimators() -> tuple[Estimator, ...]:
         TwoSidedCorrected(k=1),
         TwoSidedCorrected(k=2),
     )
+
+
+def default_estimators(design: Design, market: Market) -> tuple[Estimator, ...]:
+    """The estimators to score on ``design`` when none are given.
+
+    The design's own estimators (:meth:`Design.default_estimators`: customer-side
+    for customer-side randomization, listing-side for listing-side, the two-sided
+    family for two-sided, every built-in for a custom design) that fit its split
+    in ``market``, leaving out any that repeat an earlier one on the groups the
+    split has (the two-sided naive estimator *is* the customer-side one when every
+    listing is treated).
+
+    Returns
+    -------
+    tuple of Estimator
+        Possibly empty (e.g. for a global design).
+    """
+    split = design.split(market)
+    customers = np.isin([False, True], split.customer_treated)
+    listings = np.isin([False, True], split.listing_treated)
+    present = customers[:, None] & listings[None, :]
+    chosen: list[Estimator] = []
+    seen: list[np.ndarray] = []
+    for estimator in design.default_estimators():
+        try:
+            weights = np.where(present, estimator.weights(split, market), 0.0)
+        except ValueError:
+            continue
+        if any(np.allclose(weights, other, rtol=1e-12, atol=0.0) for other in seen):
+            continue
+        chosen.append(estimator)
+        seen.append(weights)
+    return tuple(chosen)
 
 
 def fitting_estimators(split: CellSplit, market: Market) -> tuple[Estimator, ...]:

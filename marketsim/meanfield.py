@@ -55,8 +55,8 @@ from numpy.typing import ArrayLike
 
 from marketsim import _validation as check
 from marketsim.cells import MarketCells, build_cells
-from marketsim.designs import CellSplit, Design, GlobalControl, GlobalTreatment
-from marketsim.estimators import METRICS, Estimator, fitting_estimators, metric_rate
+from marketsim.designs import Design, GlobalControl, GlobalTreatment
+from marketsim.estimators import METRICS, Estimator, default_estimators, metric_rate
 from marketsim.ledger import Ledger
 from marketsim.market import Market, Treatment
 
@@ -626,9 +626,8 @@ def expected_estimates(
     design : Design
         The experiment (e.g. ``ms.TwoSided(0.5, 0.5)``).
     estimators : iterable of Estimator, optional
-        Default: every built-in estimator that fits the design, leaving out any
-        that repeats an earlier one on this design (the two-sided naive estimator
-        under customer-side randomization is the customer-side estimator).
+        Default: the design's own estimators that fit it, without repeats
+        (:func:`marketsim.estimators.default_estimators`).
     metric : {"bookings", "revenue", "conversion"}
 
     Returns
@@ -699,8 +698,8 @@ def sweep_balance(
     balances : array_like of float
         Balances to visit, each > 0.
     estimators : iterable of Estimator, optional
-        Default: every built-in estimator that fits the design at that balance
-        (without repeats, as in :func:`expected_estimates`).
+        Default: the design's own estimators that fit it at that balance
+        (:func:`marketsim.estimators.default_estimators`).
         A given estimator is left out at balances where it does not fit the design
         (e.g. a listing-side estimator once ``for_balance`` treats every listing).
     metric : {"bookings", "revenue", "conversion"}
@@ -912,7 +911,7 @@ def _estimate_rows(market: Market, treatment: Treatment, design: Design, label: 
     ledger = _solve(cells).ledger()
     split = cells.split
     if estimators is None:
-        estimators = _distinct_fitting(split, market)
+        estimators = list(default_estimators(design, market))
     rows = []
     for estimator in estimators:
         try:
@@ -935,24 +934,6 @@ def _estimate_rows(market: Market, treatment: Treatment, design: Design, label: 
             "relative_bias": bias / truth if truth != 0.0 else math.nan,
         })
     return rows
-
-
-def _distinct_fitting(split: CellSplit, market: Market) -> list[Estimator]:
-    """Built-in estimators that fit the split, leaving out any that repeat an earlier
-    one on the groups the design has (the two-sided naive estimator *is* the
-    customer-side one when every listing is treated)."""
-    present = np.zeros((2, 2), dtype=bool)
-    present[np.ix_(np.unique(split.customer_treated.astype(int)),
-                   np.unique(split.listing_treated.astype(int)))] = True
-    chosen: list[Estimator] = []
-    seen: list[np.ndarray] = []
-    for estimator in fitting_estimators(split, market):
-        weights = np.where(present, estimator.weights(split, market), 0.0)
-        if any(np.allclose(weights, other, rtol=1e-12, atol=0.0) for other in seen):
-            continue
-        chosen.append(estimator)
-        seen.append(weights)
-    return chosen
 
 
 def _times(t: ArrayLike) -> np.ndarray:

@@ -52,7 +52,7 @@ from marketsim.estimators import (
     METRICS,
     Estimator,
     GroupTotals,
-    fitting_estimators,
+    default_estimators,
     metric_rate,
 )
 from marketsim.market import Market, Treatment
@@ -82,8 +82,10 @@ class Arm:
     design : Design
         How the experiment is randomized, e.g. ``ms.TwoSided(0.5, 0.5)``.
     estimators : Estimator or sequence of Estimator, optional
-        Estimators to apply to the design's ledgers. Default: every built-in
-        estimator that fits the design (:func:`marketsim.estimators.fitting_estimators`),
+        Estimators to apply to the design's ledgers. Default: the design's own
+        estimators that fit it (:func:`marketsim.estimators.default_estimators`:
+        customer-side for customer-side randomization, listing-side for
+        listing-side, the two-sided family for two-sided),
         leaving out any whose coefficients repeat an earlier one (the two-sided
         naive estimator *is* the customer-side one when ``a_L = 1``).
     name : str, optional
@@ -154,24 +156,16 @@ class Arm:
         ValueError
             If an estimator does not fit the design, or no built-in one does.
         """
-        split = self.design.split(market)
         if self.estimators is None:
-            chosen: list[Estimator] = []
-            seen: list[np.ndarray] = []
-            present = _present_groups(split)
-            for estimator in fitting_estimators(split, market):
-                weights = np.where(present, estimator.weights(split, market), 0.0)
-                if any(np.allclose(weights, other, rtol=1e-12, atol=0.0) for other in seen):
-                    continue
-                chosen.append(estimator)
-                seen.append(weights)
+            chosen = default_estimators(self.design, market)
             if not chosen:
                 raise ValueError(
                     f"arm {self.label!r} has no built-in estimator that fits its design "
                     f"{self.design!r} (it must randomize customers or listings); "
                     "pass estimators=[...] or use another design"
                 )
-            return tuple(chosen)
+            return chosen
+        split = self.design.split(market)
         for estimator in self.estimators:
             try:
                 estimator.weights(split, market)
@@ -183,16 +177,9 @@ class Arm:
         return self.estimators
 
     def __repr__(self) -> str:
-        shown = "every fitting estimator" if self.estimators is None else ", ".join(
+        shown = "the design's own estimators" if self.estimators is None else ", ".join(
             e.name for e in self.estimators)
         return f"Arm({self.label}: {shown})"
-
-
-def _present_groups(split) -> np.ndarray:
-    """Which (customer status, listing status) groups the split has, shape (2, 2)."""
-    customers = np.isin([False, True], split.customer_treated)
-    listings = np.isin([False, True], split.listing_treated)
-    return customers[:, None] & listings[None, :]
 
 
 # --------------------------------------------------------------------------- plan
@@ -319,8 +306,8 @@ class Study:
     treatment : Treatment
         The feature under test.
     arms : sequence of Arm or Design
-        The designs to score; a bare design is ``Arm(design)`` (every built-in
-        estimator that fits it). Arm names must be distinct.
+        The designs to score; a bare design is ``Arm(design)`` (the design's own
+        estimators that fit it). Arm names must be distinct.
     horizon : float
         Length of the measurement window of every run, > 0.
     burn_in : float
