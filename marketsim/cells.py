@@ -11,6 +11,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from marketsim.designs import CellSplit, Design, GlobalControl
 from marketsim.market import NO_TREATMENT, Market, Treatment
@@ -73,6 +74,46 @@ class MarketCells:
     def n_listing_cells(self) -> int:
         """Number of listing cells."""
         return int(self.listing_count.size)
+
+    def check_availability(self, values: ArrayLike, *, whole: bool) -> np.ndarray:
+        """Check a ``start=`` array: available listings per listing cell.
+
+        Parameters
+        ----------
+        values : array_like, shape (n_listing_cells,)
+            Each between 0 and the cell's size.
+        whole : bool
+            Require whole numbers (the finite market) or accept any real number
+            (the large-market model).
+
+        Returns
+        -------
+        ndarray of float, shape (n_listing_cells,)
+        """
+        kind = "whole numbers" if whole else "available listings"
+        shape = (self.n_listing_cells,)
+        array = np.asarray(values)
+        if array.shape != shape:
+            raise ValueError(
+                f"start must be 'empty', 'steady' or {kind} of shape (n_listing_cells,) "
+                f"= {shape} ({', '.join(self.listing_labels)}), got shape {array.shape}"
+            )
+        try:
+            numeric = array.astype(float)
+        except (TypeError, ValueError):
+            raise ValueError(f"start must contain {kind}, got {array.tolist()}") from None
+        if whole and not (np.isfinite(numeric) & (numeric % 1 == 0)).all():
+            raise ValueError(f"start must contain whole numbers, got {numeric.tolist()}")
+        outside = ~np.isfinite(numeric) | (numeric < 0) | (numeric > self.listing_count)
+        if outside.any():
+            k = int(np.argmax(outside))
+            shown = int(numeric[k]) if whole else float(numeric[k])
+            raise ValueError(
+                f"start must be between 0 and the cell size for every listing cell, got "
+                f"{shown!r} for cell {self.listing_labels[k]!r} of size "
+                f"{int(self.listing_count[k])}"
+            )
+        return numeric
 
 
 def build_cells(

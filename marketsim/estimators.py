@@ -74,47 +74,6 @@ class Estimate:
         return self.value - half, self.value + half
 
 
-def group_rates(ledger: Ledger, metric: str = "bookings") -> tuple[np.ndarray, np.ndarray]:
-    """Metric per unit time of each (customer status, listing status) group.
-
-    Parameters
-    ----------
-    ledger : Ledger
-    metric : {"bookings", "revenue", "conversion"}
-
-    Returns
-    -------
-    rates : ndarray, shape (2, 2)
-        ``rates[x, y]`` is ``Q_xy`` (for conversion: per arrival instead of per
-        unit time).
-    variances : ndarray, shape (2, 2)
-        Naive (Poisson) variance of each ``Q_xy``.
-    """
-    check.choice("metric", metric, METRICS)
-    cells = ledger.cells
-    value = np.ones(cells.n_listing_cells)
-    if metric == "revenue":
-        if cells.price is None:
-            raise ValueError(
-                "metric 'revenue' needs a market with prices: pass price=[...] to "
-                "ms.Market, got a market without prices"
-            )
-        value = cells.price
-    bookings = np.asarray(ledger.bookings, dtype=float)
-    total = bookings * value[None, :]
-    square = bookings * (value**2)[None, :]
-    rates = np.zeros((2, 2))
-    variances = np.zeros((2, 2))
-    customer = cells.split.customer_treated.astype(int)
-    listing = cells.split.listing_treated.astype(int)
-    np.add.at(rates, (customer[:, None], listing[None, :]), total)
-    np.add.at(variances, (customer[:, None], listing[None, :]), square)
-    scale = ledger.window
-    if metric == "conversion":
-        scale = max(ledger.arrival_count, 1.0)
-    return rates / scale, variances / scale**2
-
-
 @dataclass(frozen=True, eq=False)
 class GroupTotals:
     """A ledger's bookings summed by (customer status, listing status) group.
@@ -193,12 +152,33 @@ class GroupTotals:
         return replace(split, customer_share=split.customer_share * ratio)
 
 
+def group_rates(ledger: Ledger, metric: str = "bookings") -> tuple[np.ndarray, np.ndarray]:
+    """Metric per unit time of each (customer status, listing status) group.
+
+    Parameters
+    ----------
+    ledger : Ledger
+    metric : {"bookings", "revenue", "conversion"}
+
+    Returns
+    -------
+    rates : ndarray, shape (2, 2)
+        ``rates[x, y]`` is ``Q_xy`` (for conversion: per arrival instead of per
+        unit time).
+    variances : ndarray, shape (2, 2)
+        Naive (Poisson) variance of each ``Q_xy``. (The conversion estimate's
+        own standard error also accounts for the arrivals: :meth:`GroupTotals.combine`.)
+    """
+    groups = GroupTotals.of(ledger, metric)
+    return groups.totals / groups.scale, groups.squares / groups.scale**2
+
+
 def metric_rate(ledger: Ledger, metric: str = "bookings") -> float:
     """The metric of the whole market in the window (e.g. total bookings per unit
     time); the difference of this between the two global worlds is the global
     treatment effect."""
-    rates, _ = group_rates(ledger, metric)
-    return float(rates.sum())
+    groups = GroupTotals.of(ledger, metric)
+    return float(groups.totals.sum() / groups.scale)
 
 
 class Estimator(ABC):

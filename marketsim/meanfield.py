@@ -957,28 +957,7 @@ def _start_share(cells: MarketCells, model: _Model, start: object) -> np.ndarray
         if start == "empty":
             return model.rho.astype(float).copy()
         return _solve(cells).available / model.n
-    shape = (cells.n_listing_cells,)
-    try:
-        values = np.asarray(start, dtype=float)
-    except (TypeError, ValueError):
-        raise ValueError(
-            f"start must be 'empty', 'steady' or available listings of shape (n_listing_cells,)"
-            f" = {shape}, got {start!r}"
-        ) from None
-    if values.shape != shape:
-        raise ValueError(
-            f"start must be 'empty', 'steady' or available listings of shape (n_listing_cells,)"
-            f" = {shape} ({', '.join(cells.listing_labels)}), got shape {values.shape}"
-        )
-    counts = cells.listing_count.astype(float)
-    bad = ~np.isfinite(values) | (values < 0.0) | (values > counts)
-    if bad.any():
-        k = int(np.argmax(bad))
-        raise ValueError(
-            f"start must be between 0 and the cell size for every listing cell, got "
-            f"{values[k]!r} for cell {cells.listing_labels[k]!r} of size {int(counts[k])}"
-        )
-    return values / model.n
+    return cells.check_availability(start, whole=False) / model.n
 
 
 __all__ = [

@@ -135,28 +135,4 @@ def starting_availability(cells: MarketCells, start: StartLike) -> np.ndarray:
         state = steady_state(cells.market, cells.treatment, cells.design)
         rounded = np.rint(state.available).astype(np.int64)
         return np.clip(rounded, 0, cells.listing_count)
-    values = np.asarray(start)
-    shape = (cells.n_listing_cells,)
-    if values.shape != shape:
-        raise ValueError(
-            f"start must be 'empty', 'steady' or whole numbers of shape (n_listing_cells,) "
-            f"= {shape} ({', '.join(cells.listing_labels)}), got shape {values.shape}"
-        )
-    if not np.issubdtype(values.dtype, np.integer):
-        try:
-            numeric = values.astype(float)
-        except (TypeError, ValueError):
-            raise ValueError(f"start must contain whole numbers, got {values.tolist()}") from None
-        whole = np.isfinite(numeric) & (numeric % 1 == 0)
-        if not whole.all():
-            raise ValueError(f"start must contain whole numbers, got {values.tolist()}")
-    counts = values.astype(np.int64)
-    outside = (counts < 0) | (counts > cells.listing_count)
-    if outside.any():
-        k = int(np.argmax(outside))
-        raise ValueError(
-            f"start must be between 0 and the cell size for every listing cell, got "
-            f"{int(counts[k])} for cell {cells.listing_labels[k]!r} of size "
-            f"{int(cells.listing_count[k])}"
-        )
-    return counts.copy()
+    return cells.check_availability(start, whole=True).astype(np.int64)
