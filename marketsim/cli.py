@@ -1,11 +1,36 @@
-"""Command line: ``marketsim demo`` runs the whole job on the built-in scenario."""
+"""Command line.
+
+``marketsim demo``
+    The whole job on the built-in (invented) rehearsal-room scenario.
+``marketsim report FILE``
+    The same on a scenario file (see :mod:`marketsim.scenario_file`).
+``marketsim scenario-template``
+    Print the built-in scenario as a scenario file to start from.
+"""
 
 from __future__ import annotations
 
 import argparse
+import sys
 from collections.abc import Sequence
 
-from marketsim.demo import OUT, REPLICATIONS, SEED, run_demo
+from marketsim.full_report import write_full_report
+from marketsim.scenario_file import load_scenario
+from marketsim.scenarios import rehearsal_rooms_scenario
+
+REPLICATIONS = 200
+SEED = 2026
+OUT = "marketsim-report"
+
+
+def _run_options(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--replications", type=int, default=REPLICATIONS,
+                        help=f"Monte Carlo replications, >= 2 (default {REPLICATIONS})")
+    parser.add_argument("--seed", type=int, default=SEED, help=f"random seed (default {SEED})")
+    parser.add_argument("--out", default=OUT,
+                        help=f"folder for the report and its figures (default ./{OUT})")
+    parser.add_argument("--workers", type=int, default=None,
+                        help="worker processes (default: usable cores, at most 4)")
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -15,22 +40,29 @@ def main(argv: Sequence[str] | None = None) -> int:
         description="Bias and noise of A/B tests on two-sided marketplaces.",
     )
     commands = parser.add_subparsers(dest="command", required=True)
-    demo = commands.add_parser(
-        "demo", help="run the built-in rehearsal-room scenario end to end"
-    )
-    demo.add_argument("--replications", type=int, default=REPLICATIONS,
-                      help=f"Monte Carlo replications, >= 2 (default {REPLICATIONS})")
-    demo.add_argument("--seed", type=int, default=SEED, help=f"random seed (default {SEED})")
-    demo.add_argument("--out", default=OUT,
-                      help=f"folder for the report and its figures (default ./{OUT})")
-    demo.add_argument("--workers", type=int, default=None,
-                      help="worker processes (default: usable cores, at most 4)")
+    demo = commands.add_parser("demo", help="the whole job on the built-in invented scenario")
+    _run_options(demo)
+    report = commands.add_parser("report", help="the whole job on a scenario file (JSON)")
+    report.add_argument("scenario", help="path of the scenario file")
+    _run_options(report)
+    commands.add_parser("scenario-template",
+                        help="print the built-in scenario as a file to start from")
     args = parser.parse_args(argv)
+    if args.command == "scenario-template":
+        sys.stdout.write(rehearsal_rooms_scenario().to_json())
+        return 0
+    if args.replications < 2:
+        parser.error(f"--replications must be a whole number >= 2, got {args.replications}")
+    if args.workers is not None and args.workers < 1:
+        parser.error(f"--workers must be a whole number >= 1, got {args.workers}")
     if args.command == "demo":
-        if args.replications < 2:
-            parser.error(f"--replications must be a whole number >= 2, got {args.replications}")
-        if args.workers is not None and args.workers < 1:
-            parser.error(f"--workers must be a whole number >= 1, got {args.workers}")
-        run_demo(replications=args.replications, seed=args.seed, out=args.out,
-                 workers=args.workers)
+        scenario = rehearsal_rooms_scenario()
+        print("The scenario and its numbers are invented.")
+    else:
+        try:
+            scenario = load_scenario(args.scenario)
+        except ValueError as error:
+            parser.error(str(error))
+    write_full_report(scenario, replications=args.replications, seed=args.seed,
+                      out=args.out, workers=args.workers)
     return 0

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from marketsim.market import Market, Treatment
+from marketsim.scenario_file import Scenario
 
 
 def rehearsal_rooms(balance: float | None = None) -> Market:
@@ -42,3 +43,18 @@ def instant_confirmation() -> Treatment:
     """The invented feature under test: instant booking confirmation, which
     makes every room a little more attractive (utility + 0.3)."""
     return Treatment(utility_shift=0.3)
+
+
+def rehearsal_rooms_scenario() -> Scenario:
+    """The demo's whole scenario: the rehearsal-room market, instant confirmation,
+    and a planned two-week experiment (336 hours after a 50-hour warm-up) that
+    must detect 0.3 more bookings per hour. Every number is made up."""
+    return Scenario(
+        name="a rehearsal-room marketplace (invented)",
+        market=rehearsal_rooms(),
+        treatment=instant_confirmation(),
+        horizon=336.0,
+        burn_in=50.0,
+        minimum_effect=0.3,
+        time_unit="hour",
+    )

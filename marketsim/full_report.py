@@ -1,7 +1,9 @@
-"""The demo: the built-in rehearsal-room scenario, end to end.
+"""The whole job on one scenario: study, balance sweep, design choice, horizon; a report.
 
-Each section is a function taking what it needs and returning what it made, so
-that further sections (sweeps, planning) can be added to :func:`run_demo`.
+:func:`write_full_report` is what ``marketsim demo`` (on the built-in scenario)
+and ``marketsim report FILE`` (on a scenario file) run. Each section is a
+function that prints its main figures and adds its tables and figures to the
+Markdown report.
 """
 
 from __future__ import annotations
@@ -19,39 +21,22 @@ from marketsim.estimators import (
     TwoSidedCorrected,
     TwoSidedNaive,
 )
-from marketsim.market import Market, Treatment
 from marketsim.planning import choose_design, default_candidates, plan_horizon, power_table
 from marketsim.plotting.sweep import plot_balance_sweep
 from marketsim.randomness import SeedLike, spawn
 from marketsim.report import Report
-from marketsim.scenarios import instant_confirmation, rehearsal_rooms
+from marketsim.scenario_file import Scenario
 from marketsim.study import CAVEAT, Arm, Study, StudyResult, default_workers
 
-HORIZON = 500.0
-"""Hours measured in every simulated run of the demo."""
-BURN_IN = 50.0
-"""Hours simulated before the window opens."""
-PLANNED_HORIZON = 336.0
-"""Hours of the planned experiment (two weeks)."""
-MINIMUM_EFFECT = 0.3
-"""Smallest change in bookings per hour worth detecting (a business input)."""
-REPLICATIONS = 200
-SEED = 2026
-OUT = "marketsim-report"
+SWEEP_LISTINGS = 1000
+"""The balance sweep uses the large-market limit of the market grown to at least this size."""
 
 
-def describe_scenario(market: Market, treatment: Treatment) -> None:
-    """Print what the scenario is."""
-    print("Scenario (invented): a marketplace for renting music rehearsal rooms")
-    print(f"  {market}")
-    print(f"  feature under test: instant booking confirmation, {treatment}")
-
-
-def demo_arms(market: Market) -> list[Arm]:
+def study_arms(scenario: Scenario) -> list[Arm]:
     """Customer-side, listing-side and two two-sided designs, each with its own
     estimators."""
     two_sided = [TwoSidedNaive(), TwoSidedCorrected(k=1), TwoSidedCorrected(k=2)]
-    following = TwoSided.for_balance(market.balance)
+    following = TwoSided.for_balance(scenario.market.balance)
     return [
         Arm(CustomerSide(0.5), [CustomerSideEstimator()], name="customer-side 0.5"),
         Arm(ListingSide(0.5), [ListingSideEstimator()], name="listing-side 0.5"),
@@ -61,12 +46,15 @@ def demo_arms(market: Market) -> list[Arm]:
     ]
 
 
-def run_study(market: Market, treatment: Treatment, replications: int, seed: SeedLike,
+def run_study(scenario: Scenario, replications: int, seed: SeedLike,
               workers: int) -> StudyResult:
-    """Score the demo's designs on the scenario."""
-    study = Study(market, treatment, demo_arms(market), horizon=HORIZON, burn_in=BURN_IN)
-    print(f"Study: {len(study.arms)} designs, {replications} replications of {HORIZON:g} "
-          f"hours after a {BURN_IN:g}-hour burn-in, {workers} worker process(es)")
+    """Score the standard designs on the scenario over the planned horizon."""
+    study = Study(scenario.market, scenario.treatment, study_arms(scenario),
+                  horizon=scenario.horizon, burn_in=scenario.burn_in)
+    unit = scenario.time_unit
+    print(f"Study: {len(study.arms)} designs, {replications} replications of "
+          f"{scenario.horizon:g} {unit}s after a {scenario.burn_in:g}-{unit} burn-in, "
+          f"{workers} worker process(es)")
     return study.run(replications, seed=seed, workers=workers, progress=True)
 
 
@@ -91,28 +79,29 @@ def format_summary(result: StudyResult) -> str:
     return "\n".join(lines)
 
 
-def print_study(result: StudyResult) -> None:
+def print_study(result: StudyResult, unit: str) -> None:
     """Print the truth and the summary table of a study."""
     truth = result.truth.iloc[0]
-    print(f"  booking rate, global control:   {truth['global_control']:7.3f} per hour")
-    print(f"  booking rate, global treatment: {truth['global_treatment']:7.3f} per hour")
-    print(f"  global treatment effect:        {truth['value']:7.3f} per hour "
+    print(f"  booking rate, global control:   {truth['global_control']:7.3f} per {unit}")
+    print(f"  booking rate, global treatment: {truth['global_treatment']:7.3f} per {unit}")
+    print(f"  global treatment effect:        {truth['value']:7.3f} per {unit} "
           f"(Monte Carlo s.e. {truth['mc_se']:.3f})")
     worst = result.summary["bias_mc_se"].max()
-    print(f"Bookings per hour, {result.completed} replications (bias Monte Carlo s.e. "
+    print(f"Bookings per {unit}, {result.completed} replications (bias Monte Carlo s.e. "
           f"at most {worst:.3f}; coverage of the nominal 95% interval):")
     print(format_summary(result))
 
 
-def study_section(report: Report, result: StudyResult) -> None:
+def study_section(report: Report, result: StudyResult, scenario: Scenario) -> None:
     """The study's table, figure and power table in the report."""
     truth = result.truth.iloc[0]
+    unit = scenario.time_unit
     report.heading("1. How biased and how noisy is each design?")
     report.text(
-        f"Each of {result.completed} replications simulates {HORIZON:g} hours (after a "
-        f"{BURN_IN:g}-hour burn-in) of both global worlds and of every design. True global "
-        f"treatment effect: **{truth['value']:.3f} bookings per hour** (Monte Carlo s.e. "
-        f"{truth['mc_se']:.3f}), from {truth['global_control']:.3f} to "
+        f"Each of {result.completed} replications simulates {scenario.horizon:g} {unit}s "
+        f"(after a {scenario.burn_in:g}-{unit} burn-in) of both global worlds and of every "
+        f"design. True global treatment effect: **{truth['value']:.3f} bookings per {unit}** "
+        f"(Monte Carlo s.e. {truth['mc_se']:.3f}), from {truth['global_control']:.3f} to "
         f"{truth['global_treatment']:.3f}."
     )
     columns = ["arm", "estimator", "mean_estimate", "bias", "bias_mc_se", "relative_bias",
@@ -124,10 +113,10 @@ def study_section(report: Report, result: StudyResult) -> None:
     report.figure(result.plot(), "study.png",
                   "Relative bias and RMSE per design and estimator (+-2 Monte Carlo s.e.)")
     report.text(
-        f"Power of a two-sided test at the 5% level over {HORIZON:g} hours, with type S "
-        "(wrong sign) and type M (exaggeration) errors of significant results (Gelman & "
-        "Carlin 2014), and the chance of a significant result if the feature did nothing "
-        "but the bias stayed:"
+        f"Power of a two-sided test at the 5% level over {scenario.horizon:g} {unit}s, with "
+        "type S (wrong sign) and type M (exaggeration) errors of significant results "
+        "(Gelman & Carlin 2014), and the chance of a significant result if the feature did "
+        "nothing but the bias stayed:"
     )
     powers = power_table(result)
     report.table(powers[["arm", "estimator", "power", "type_s", "type_m",
@@ -136,44 +125,53 @@ def study_section(report: Report, result: StudyResult) -> None:
                   "false_positive_rate": "{:.2f}"})
 
 
-def sweep_section(report: Report, market: Market, treatment: Treatment) -> pd.DataFrame:
-    """Large-market bias of the demo's designs over balance, in the report."""
+def sweep_section(report: Report, scenario: Scenario) -> pd.DataFrame:
+    """Large-market bias of the standard designs over balance, in the report."""
+    market = scenario.market
     designs = {"customer-side 0.5": CustomerSide(0.5), "listing-side 0.5": ListingSide(0.5),
                "two-sided 0.5/0.5": TwoSided(0.5, 0.5),
                "two-sided for balance": TwoSided.for_balance}
-    large = market.scaled(25)
-    table = meanfield.sweep_balance(large, treatment, designs, np.logspace(-2, 2, 41))
+    large = market.scaled(max(1.0, SWEEP_LISTINGS / market.n_listings))
+    table = meanfield.sweep_balance(large, scenario.treatment, designs,
+                                    np.logspace(-2, 2, 41))
     one_sided = table[table["design"].isin(["customer-side 0.5", "listing-side 0.5"])]
     wide = one_sided.pivot_table(index="balance", columns="design", values="relative_bias")
     customer_better = wide["customer-side 0.5"].abs() < wide["listing-side 0.5"].abs()
-    switch = wide.index[~customer_better.to_numpy()].min()
+    listing_better = wide.index[~customer_better.to_numpy()]
+    if len(listing_better):
+        switch = float(listing_better.min())
+        finding = (f"Customer-side randomization is the less biased one-sided design below a "
+                   f"balance of about {switch:.2g}, listing-side above it")
+    else:
+        finding = "Customer-side randomization is the less biased one-sided design throughout"
     report.heading("2. How does the bias depend on the balance of demand and supply?")
     report.text(
-        "The large-market limit of the same market (1,000 listings, no Monte Carlo error), "
-        f"with the arrival rate varied. This market's balance is {market.balance:.2f}. "
-        f"Customer-side randomization is the less biased one-sided design below a balance "
-        f"of about {switch:.2g}, listing-side above it; two-sided randomization with "
-        "fractions that follow balance stays close to unbiased at both ends."
+        f"The large-market limit of the same market ({large.n_listings:,} listings, no Monte "
+        f"Carlo error), with the arrival rate varied. This market's balance is "
+        f"{market.balance:.2f}. {finding}; two-sided randomization with fractions that "
+        "follow balance becomes customer-side when demand is scarce and listing-side when "
+        "supply is scarce."
     )
     report.figure(plot_balance_sweep(table, ylim=(-1.0, 3.0)), "balance_sweep.png",
                   "Relative bias against balance (large-market limit)")
-    print(f"Balance sweep: customer-side less biased below balance ~{switch:.2g}, "
-          "listing-side above.")
+    print(f"Balance sweep: {finding.lower()}.")
     return table
 
 
-def plan_section(report: Report, market: Market, treatment: Treatment, replications: int,
+def plan_section(report: Report, scenario: Scenario, replications: int,
                  seed: np.random.SeedSequence, workers: int) -> None:
-    """Design choice at the planned horizon and the horizon for a minimum effect."""
+    """Design choice at the planned horizon and the horizon for the minimum effect."""
+    market, treatment, unit = scenario.market, scenario.treatment, scenario.time_unit
     choice_seed, plan_seed = spawn(seed, 2)
     candidates = default_candidates(market.balance)
-    choice = choose_design(market, treatment, horizon=PLANNED_HORIZON, burn_in=BURN_IN,
-                           candidates=candidates, replications=replications,
-                           seed=choice_seed, workers=workers, progress=True)
+    choice = choose_design(market, treatment, horizon=scenario.horizon,
+                           burn_in=scenario.burn_in, candidates=candidates,
+                           replications=replications, seed=choice_seed, workers=workers,
+                           progress=True)
     best = choice.recommended
     report.heading("3. Which design, and how long to run it?")
-    report.text(f"All candidate designs at the planned horizon of {PLANNED_HORIZON:g} hours "
-                "(two weeks), best first:")
+    report.text(f"All candidate designs at the planned horizon of {scenario.horizon:g} "
+                f"{unit}s, best first:")
     report.table(choice.table[["rank", "arm", "estimator", "bias", "sd", "rmse",
                                "rmse_mc_se", "bias_share"]].head(8),
                  {"bias": "{:+.3f}", "sd": "{:.3f}", "rmse": "{:.3f}",
@@ -184,30 +182,36 @@ def plan_section(report: Report, market: Market, treatment: Treatment, replicati
     arm = next(a for a in candidates if a.label == best["arm"])
     estimator = next(e for e in arm.resolve(market) if e.name == best["estimator"])
     plan = plan_horizon(market, treatment, Arm(arm.design, [estimator], name=arm.label),
-                        pilot_horizon=PLANNED_HORIZON / 4, burn_in=BURN_IN,
-                        minimum_effect=MINIMUM_EFFECT, replications=replications,
+                        pilot_horizon=scenario.horizon / 4, burn_in=scenario.burn_in,
+                        minimum_effect=scenario.minimum_effect, replications=replications,
                         seed=plan_seed, workers=workers, progress=True)
     report.text(f"How long must **{arm.label}** with the {estimator.name} estimator run to "
-                f"detect {MINIMUM_EFFECT:g} more bookings per hour (80% power, 5% level)?")
+                f"detect {scenario.minimum_effect:g} more bookings per {unit} (80% power, "
+                "5% level)? (Horizons are in "
+                f"{unit}s.)")
     report.text(plan.report().replace("\n", "\n\n"))
     print(choice.report())
     print(plan.report())
 
 
-def run_demo(replications: int = REPLICATIONS, seed: int = SEED, out: str | Path = OUT,
-             workers: int | None = None) -> Path:
-    """Run the demo: the whole job on the built-in scenario, written up as a report.
+def write_full_report(scenario: Scenario, replications: int = 200, seed: SeedLike = 2026,
+                      out: str | Path = "marketsim-report",
+                      workers: int | None = None) -> Path:
+    """Run the whole job on a scenario and write it up.
 
-    Scores the designs (a study), sweeps balance in the large-market limit, chooses
-    a design at a planned horizon and sizes the experiment; prints the main
-    figures and writes ``report.md`` with its PNG figures into ``out``.
+    Scores the standard designs over the planned horizon (a study), sweeps
+    balance in the large-market limit, chooses a design at the planned horizon
+    and sizes the experiment for the minimum effect; prints the main figures and
+    writes ``report.md`` with its PNG figures into ``out``.
 
     Parameters
     ----------
+    scenario : Scenario
+        The market, the feature and the planned experiment.
     replications : int
         Monte Carlo replications of each study (>= 2).
-    seed : int
-        Seed of the whole demo.
+    seed : int, SeedSequence, Generator or None
+        Seed of the whole run.
     out : str or Path
         Folder for the report (created if needed).
     workers : int, optional
@@ -218,25 +222,24 @@ def run_demo(replications: int = REPLICATIONS, seed: int = SEED, out: str | Path
     Path
         The report file.
     """
-    market, treatment = rehearsal_rooms(), instant_confirmation()
+    market, treatment = scenario.market, scenario.treatment
     workers = min(4, default_workers()) if workers is None else workers
     study_seed, plan_seed = spawn(seed, 2)
-    report = Report(out, "Experiment report: a rehearsal-room marketplace (invented)")
-    report.text(
-        f"Feature under test: instant booking confirmation ({treatment}). Market: {market}. "
-        "Time is in hours. The scenario and its numbers are invented."
-    )
+    report = Report(out, f"Experiment report: {scenario.name}")
+    report.text(f"Feature under test: {treatment}. Market: {market}. Rates and times are "
+                f"per {scenario.time_unit}.")
     report.table(market.summary())
-    describe_scenario(market, treatment)
-    result = run_study(market, treatment, replications, study_seed, workers)
-    print_study(result)
-    study_section(report, result)
-    sweep_section(report, market, treatment)
-    plan_section(report, market, treatment, replications, plan_seed, workers)
+    print(f"Scenario: {scenario.name}")
+    print(f"  {market}")
+    print(f"  feature under test: {treatment}")
+    result = run_study(scenario, replications, study_seed, workers)
+    print_study(result, scenario.time_unit)
+    study_section(report, result, scenario)
+    sweep_section(report, scenario)
+    plan_section(report, scenario, replications, plan_seed, workers)
     report.heading("What these numbers are worth")
     report.text(CAVEAT)
     path = report.write()
     print(f"Caveat: {CAVEAT}")
-    print("The scenario and its numbers are invented.")
     print(f"Report: {path.resolve()}")
     return path

@@ -1,0 +1,186 @@
+"""Scenario files: a market, a feature and a planned experiment in one JSON file.
+
+The command line reads these (``marketsim report my_market.json``);
+``marketsim scenario-template`` prints the built-in example to start from::
+
+    {
+      "name": "rehearsal-room marketplace (invented)",
+      "time_unit": "hour",
+      "market": {"listing_types": [...], "listing_counts": [...], ...},
+      "treatment": {"utility_shift": 0.3},
+      "experiment": {"horizon": 336, "burn_in": 50, "minimum_effect": 0.3}
+    }
+
+``market`` takes the arguments of :class:`marketsim.Market`, ``treatment`` those
+of :class:`marketsim.Treatment`; ``experiment`` says how long the planned test
+runs (``horizon``, in ``time_unit``), how long the simulated market warms up
+first (``burn_in``) and the smallest effect on bookings per ``time_unit`` worth
+detecting (``minimum_effect``).
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass
+from pathlib import Path
+
+from marketsim import _validation as check
+from marketsim.market import Market, Treatment
+
+MARKET_KEYS = ("listing_counts", "mean_busy_time", "arrival_rate", "customer_shares",
+               "consideration", "utility", "outside_utility", "listing_types",
+               "customer_types", "price")
+TREATMENT_KEYS = ("utility_shift", "consideration_factor", "outside_utility_shift")
+EXPERIMENT_KEYS = ("horizon", "burn_in", "minimum_effect")
+TOP_KEYS = ("name", "time_unit", "market", "treatment", "experiment")
+
+
+@dataclass(frozen=True, eq=False)
+class Scenario:
+    """A market, the feature under test and the planned experiment.
+
+    Attributes
+    ----------
+    name : str
+        What the market is, for report titles.
+    market : Market
+    treatment : Treatment
+    horizon : float
+        Planned length of the experiment, > 0.
+    burn_in : float
+        Warm-up simulated before every measurement window, >= 0.
+    minimum_effect : float
+        Smallest change in bookings per time unit worth detecting, > 0.
+    time_unit : str
+        Name of the time unit of every rate and time (e.g. ``"hour"``).
+    """
+
+    name: str
+    market: Market
+    treatment: Treatment
+    horizon: float
+    burn_in: float
+    minimum_effect: float
+    time_unit: str = "time unit"
+
+    def __post_init__(self) -> None:
+        check.number("horizon", self.horizon, low=0.0, low_open=True)
+        check.number("burn_in", self.burn_in, low=0.0)
+        check.number("minimum_effect", self.minimum_effect, low=0.0, low_open=True)
+        for name in ("name", "time_unit"):
+            value = getattr(self, name)
+            if not isinstance(value, str) or not value.strip():
+                raise ValueError(f"{name} must be a non-empty string, got {value!r}")
+
+    def to_dict(self) -> dict:
+        """The scenario as plain JSON-ready data (the file format)."""
+        market = self.market
+        market_data = {
+            "listing_types": list(market.listing_types),
+            "listing_counts": market.listing_counts.tolist(),
+            "mean_busy_time": market.mean_busy_time.tolist(),
+            "arrival_rate": market.arrival_rate,
+            "customer_types": list(market.customer_types),
+            "customer_shares": market.customer_shares.tolist(),
+            "consideration": market.consideration.tolist(),
+            "utility": market.utility.tolist(),
+            "outside_utility": market.outside_utility.tolist(),
+        }
+        if market.price is not None:
+            market_data["price"] = market.price.tolist()
+        treatment = {
+            name: _plain(getattr(self.treatment, name)) for name in TREATMENT_KEYS
+        }
+        return {
+            "name": self.name,
+            "time_unit": self.time_unit,
+            "market": market_data,
+            "treatment": treatment,
+            "experiment": {"horizon": self.horizon, "burn_in": self.burn_in,
+                           "minimum_effect": self.minimum_effect},
+        }
+
+    def to_json(self) -> str:
+        """The scenario file's text."""
+        return json.dumps(self.to_dict(), indent=2) + "\n"
+
+
+def _plain(value: object) -> object:
+    return value.tolist() if hasattr(value, "tolist") else value
+
+
+def load_scenario(path: str | Path) -> Scenario:
+    """Read a scenario file.
+
+    Parameters
+    ----------
+    path : str or Path
+        A JSON file in the format of :mod:`marketsim.scenario_file`.
+
+    Returns
+    -------
+    Scenario
+
+    Raises
+    ------
+    ValueError
+        If the file is not valid JSON, a key is missing or unknown, or a value
+        is out of range; the message names the key (``market.arrival_rate must
+        be ...``).
+    """
+    path = Path(path)
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise ValueError(f"scenario file {str(path)!r} does not exist") from None
+    except json.JSONDecodeError as error:
+        raise ValueError(f"scenario file {str(path)!r} is not valid JSON: {error}") from None
+    return scenario_from_dict(data)
+
+
+def scenario_from_dict(data: object) -> Scenario:
+    """Build a :class:`Scenario` from the file format's data (see the module notes)."""
+    section = _section(data, "scenario", TOP_KEYS, required=("market", "experiment"))
+    market_data = _section(section["market"], "market", MARKET_KEYS,
+                           required=MARKET_KEYS[:7])
+    treatment_data = _section(section.get("treatment", {}), "treatment", TREATMENT_KEYS,
+                              required=())
+    experiment = _section(section["experiment"], "experiment", EXPERIMENT_KEYS,
+                          required=("horizon", "minimum_effect"))
+    for key in ("name", "time_unit"):
+        if key in section and (not isinstance(section[key], str) or not section[key].strip()):
+            raise ValueError(f"{key} must be a non-empty string, got {section[key]!r}")
+    market = _prefixed("market", lambda: Market(**market_data))
+    treatment = _prefixed("treatment", lambda: Treatment(**treatment_data))
+    return _prefixed("experiment", lambda: Scenario(
+        name=section.get("name", "a marketplace"),
+        market=market,
+        treatment=treatment,
+        horizon=experiment["horizon"],
+        burn_in=experiment.get("burn_in", 0.0),
+        minimum_effect=experiment["minimum_effect"],
+        time_unit=section.get("time_unit", "time unit"),
+    ))
+
+
+def _section(data: object, name: str, allowed: tuple[str, ...],
+             required: tuple[str, ...]) -> dict:
+    if not isinstance(data, dict):
+        raise ValueError(f"{name} must be a JSON object, got {type(data).__name__}")
+    unknown = sorted(set(data) - set(allowed))
+    if unknown:
+        raise ValueError(
+            f"{name} has an unknown key {unknown[0]!r}; allowed keys: {', '.join(allowed)}"
+        )
+    missing = [key for key in required if key not in data]
+    if missing:
+        raise ValueError(f"{name} must have the key {missing[0]!r}, got keys {sorted(data)}")
+    return data
+
+
+def _prefixed(section: str, build):
+    """Run ``build`` and prefix the section to any error message."""
+    try:
+        return build()
+    except ValueError as error:
+        raise ValueError(f"{section}.{error}") from None
