@@ -15,6 +15,7 @@ from marketsim.designs import (
     GlobalTreatment,
     ListingSide,
     TwoSided,
+    TwoSidedFollowingBalance,
 )
 from marketsim.engine import simulate
 from marketsim.estimators import (
@@ -49,6 +50,7 @@ __all__ = [
     "CustomerSide",
     "ListingSide",
     "TwoSided",
+    "TwoSidedFollowingBalance",
     "MarketCells",
     "build_cells",
     "simulate",

@@ -400,6 +400,56 @@ class TwoSided(Design):
                    listings=listings * (1.0 - beta) + beta)
 
 
+@dataclass(frozen=True)
+class TwoSidedFollowingBalance(Design):
+    """Two-sided randomization whose treated fractions follow the balance of the
+    market it is applied to (:meth:`TwoSided.for_balance` at ``market.balance``).
+
+    Unlike ``TwoSided.for_balance(b)``, which fixes the fractions for one
+    balance, this design recomputes them for every market, so one object serves
+    a whole sweep over balance (and can carry its own estimators in an
+    :class:`~marketsim.Arm`).
+
+    Parameters
+    ----------
+    customers, listings : float
+        Base fractions ``a_C*`` and ``a_L*``, in (0, 1).
+
+    Examples
+    --------
+    >>> import marketsim as ms
+    >>> design = ms.TwoSidedFollowingBalance()
+    >>> design.at(1.0) == ms.TwoSided.for_balance(1.0)
+    True
+    """
+
+    customers: float = 0.5
+    listings: float = 0.5
+
+    def __post_init__(self) -> None:
+        check.number("customers", self.customers, low=0.0, high=1.0, low_open=True,
+                     high_open=True)
+        check.number("listings", self.listings, low=0.0, high=1.0, low_open=True,
+                     high_open=True)
+
+    def at(self, balance: float) -> TwoSided:
+        """The two-sided design this one is at ``balance``."""
+        return TwoSided.for_balance(balance, self.customers, self.listings)
+
+    def split(self, market: Market) -> CellSplit:
+        return self.at(market.balance).split(market)
+
+    def default_estimators(self) -> tuple[Estimator, ...]:
+        return self.at(1.0).default_estimators()
+
+    @property
+    def label(self) -> str:
+        if (self.customers, self.listings) == (0.5, 0.5):
+            return "two-sided (follows balance)"
+        return (f"two-sided (follows balance, a_C*={self.customers:.3g}, "
+                f"a_L*={self.listings:.3g})")
+
+
 __all__ = [
     "CellSplit",
     "Design",
@@ -408,4 +458,5 @@ __all__ = [
     "CustomerSide",
     "ListingSide",
     "TwoSided",
+    "TwoSidedFollowingBalance",
 ]

@@ -388,8 +388,8 @@ def default_estimators(design: Design, market: Market) -> tuple[Estimator, ...]:
     for customer-side randomization, listing-side for listing-side, the two-sided
     family for two-sided, every built-in for a custom design) that fit its split
     in ``market``, leaving out any that repeat an earlier one on the groups the
-    split has (the two-sided naive estimator *is* the customer-side one when every
-    listing is treated).
+    split has (scored on a custom design that treats every listing, the two-sided
+    naive estimator *is* the customer-side one).
 
     Returns
     -------

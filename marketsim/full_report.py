@@ -163,7 +163,7 @@ def plan_section(report: Report, scenario: Scenario, replications: int,
     """Design choice at the planned horizon and the horizon for the minimum effect."""
     market, treatment, unit = scenario.market, scenario.treatment, scenario.time_unit
     choice_seed, plan_seed = spawn(seed, 2)
-    candidates = default_candidates(market.balance)
+    candidates = default_candidates()
     choice = choose_design(market, treatment, horizon=scenario.horizon,
                            burn_in=scenario.burn_in, candidates=candidates,
                            replications=replications, seed=choice_seed, workers=workers,

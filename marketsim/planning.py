@@ -23,7 +23,13 @@ from tqdm import tqdm
 
 from marketsim import _validation as check
 from marketsim import meanfield
-from marketsim.designs import CustomerSide, Design, ListingSide, TwoSided
+from marketsim.designs import (
+    CustomerSide,
+    Design,
+    ListingSide,
+    TwoSided,
+    TwoSidedFollowingBalance,
+)
 from marketsim.estimators import METRICS
 from marketsim.market import Market, Treatment
 from marketsim.power import detectable_standard_error, power_with_bias
@@ -68,8 +74,10 @@ def sweep(
         The market at which every parameter not swept stays.
     treatment : Treatment
     arms : sequence of Arm, Design or callable
-        What to score at every point. A callable ``balance -> Design`` (such as
-        ``ms.TwoSided.for_balance``) gives designs that follow balance.
+        What to score at every point. :class:`~marketsim.TwoSidedFollowingBalance`
+        follows balance (put it in an ``Arm`` to choose its estimators); a
+        callable ``balance -> Design`` (such as ``ms.TwoSided.for_balance``) works
+        too.
     values : sequence
         The values of ``parameter`` to visit.
     parameter : str or callable
@@ -548,12 +556,12 @@ class DesignChoice:
         return self.report()
 
 
-def default_candidates(balance: float) -> list[Arm]:
-    """A grid of designs and treated fractions to compare at a given balance."""
+def default_candidates() -> list[Arm]:
+    """A grid of designs and treated fractions to compare (the default of :func:`choose_design`)."""
     arms = [Arm(CustomerSide(a)) for a in (0.25, 0.5, 0.75)]
     arms += [Arm(ListingSide(a)) for a in (0.25, 0.5, 0.75)]
     arms.append(Arm(TwoSided(0.5, 0.5)))
-    arms.append(Arm(TwoSided.for_balance(balance), name="two-sided (follows balance)"))
+    arms.append(Arm(TwoSidedFollowingBalance()))
     return arms
 
 
@@ -591,7 +599,7 @@ def choose_design(
     DesignChoice
     """
     _require(market, treatment)
-    arms = default_candidates(market.balance) if candidates is None else list(candidates)
+    arms = default_candidates() if candidates is None else list(candidates)
     study = Study(market, treatment, arms, horizon=horizon, burn_in=burn_in, metric=metric)
     result = study.run(replications, seed=seed, workers=workers, progress=progress)
     table = result.summary.sort_values("rmse", kind="stable").reset_index(drop=True)

@@ -86,8 +86,7 @@ class Arm:
         estimators that fit it (:func:`marketsim.estimators.default_estimators`:
         customer-side for customer-side randomization, listing-side for
         listing-side, the two-sided family for two-sided),
-        leaving out any whose coefficients repeat an earlier one (the two-sided
-        naive estimator *is* the customer-side one when ``a_L = 1``).
+        leaving out any whose coefficients repeat an earlier one.
     name : str, optional
         Name of the arm in tables and plots (default: the design's label).
 

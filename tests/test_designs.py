@@ -166,3 +166,20 @@ def test_designs_are_values_that_pickle():
                    ms.GlobalControl(), OnlyStudios(0.5)):
         again = pickle.loads(pickle.dumps(design))
         assert again == design and hash(again) == hash(design)
+
+
+def test_two_sided_following_balance_is_for_balance_at_each_market():
+    """One object, recomputed for every market: the split equals that of
+    TwoSided.for_balance at the market's own balance."""
+    design = ms.TwoSidedFollowingBalance()
+    for balance in (0.05, 1.0, 20.0):
+        market = ms.scenarios.rehearsal_rooms(balance=balance)
+        ours = design.split(market)
+        fixed = ms.TwoSided.for_balance(balance).split(market)
+        assert ours.customer_share.tolist() == fixed.customer_share.tolist()
+        assert ours.listing_count.tolist() == fixed.listing_count.tolist()
+    assert design.label == "two-sided (follows balance)"
+    assert [e.name for e in design.default_estimators()] == [
+        "two-sided naive", "two-sided corrected (k=1)", "two-sided corrected (k=2)"]
+    with pytest.raises(ValueError, match=r"listings must be a finite number in \(0, 1\)"):
+        ms.TwoSidedFollowingBalance(listings=1.0)

@@ -205,3 +205,18 @@ def test_design_choice_recommends_smallest_rmse():
     assert "Recommended:" in choice.report()
     figure = choice.plot()
     assert figure.axes
+
+
+def test_sweep_of_a_design_that_follows_balance_with_chosen_estimators():
+    """An Arm of TwoSidedFollowingBalance carries its own estimators through a sweep,
+    and agrees with the large-market model of TwoSided.for_balance at each point."""
+    market = ms.scenarios.rehearsal_rooms().scaled(25)
+    treatment = ms.scenarios.instant_confirmation()
+    arm = ms.Arm(ms.TwoSidedFollowingBalance(), [ms.CustomerSideEstimator()])
+    table = sweep(market, treatment, [arm], values=[0.3, 1.0, 3.0])
+    assert table["arm"].unique().tolist() == ["two-sided (follows balance)"]
+    assert table["estimator"].unique().tolist() == ["customer-side"]
+    reference = ms.meanfield.sweep_balance(market, treatment, ms.TwoSided.for_balance,
+                                           [0.3, 1.0, 3.0],
+                                           estimators=[ms.CustomerSideEstimator()])
+    assert np.allclose(table["bias"], reference["bias"], rtol=1e-12, atol=0.0)
