@@ -1,0 +1,23 @@
+"""The benchmark scripts still run (tiny settings): timings are not checked here,
+only that each script finishes and prints its ratio, so that they never rot."""
+
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+BENCHMARKS = Path(__file__).resolve().parent.parent / "benchmarks"
+
+
+@pytest.mark.parametrize("script, arguments, expected", [
+    ("engine_vs_simpy.py", ["--quick", "--repeats", "1"], "cost per event at 1,000,000"),
+    ("study_workers.py", ["--replications", "4", "--events", "2e4", "--repeats", "1"],
+     "speed-up:"),
+    ("meanfield_speed.py", ["--repeats", "3"], "Balance sweep, 60 points"),
+])
+def test_benchmark_script_runs(script, arguments, expected):
+    done = subprocess.run([sys.executable, str(BENCHMARKS / script), *arguments],
+                          capture_output=True, text=True, timeout=600, check=False)
+    assert done.returncode == 0, done.stderr[-2000:]
+    assert expected in done.stdout
