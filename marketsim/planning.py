@@ -14,6 +14,7 @@ under the RMSE that no amount of traffic removes.
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
@@ -133,13 +134,8 @@ def sweep(
                 "mode 'simulation' needs horizon and replications, got "
                 f"horizon={horizon!r}, replications={replications!r}"
             )
-        seeds = spawn(seed, len(points))
-        frames = []
-        for at, child in zip(tqdm(markets, desc="sweep", disable=not progress), seeds):
-            study = Study(at, treatment, [_arm_at(a, at) for a in arm_likes],
-                          horizon=horizon, burn_in=burn_in, metric=metric)
-            result = study.run(replications, seed=child, workers=workers, progress=False)
-            frames.append(_simulation_point(result))
+        frames = _simulate_points(markets, treatment, arm_likes, horizon, burn_in, metric,
+                                  replications, seed, workers, progress)
     rows = []
     for value, at, frame in zip(points, markets, frames):
         frame = frame.copy()
@@ -149,6 +145,33 @@ def sweep(
         rows.append(frame)
     columns = SWEEP_COLUMNS + (SIMULATION_COLUMNS if mode == "simulation" else [])
     return pd.concat(rows, ignore_index=True)[columns]
+
+
+def _simulate_points(markets: list[Market], treatment: Treatment, arm_likes: list[ArmLike],
+                     horizon: float, burn_in: float, metric: str, replications: int,
+                     seed: SeedLike, workers: int, progress: bool) -> list[pd.DataFrame]:
+    """One study per point; Ctrl-C keeps the points finished (and a partial last one)."""
+    frames = []
+    points = tqdm(markets, desc="sweep", unit="point", disable=not progress)
+    for at, child in zip(points, spawn(seed, len(markets))):
+        study = Study(at, treatment, [_arm_at(a, at) for a in arm_likes],
+                      horizon=horizon, burn_in=burn_in, metric=metric)
+        try:
+            result = study.run(replications, seed=child, workers=workers, progress=False)
+        except KeyboardInterrupt:  # fewer than two replications of this point finished
+            result = None
+        if result is not None:
+            frames.append(_simulation_point(result))
+        if result is None or result.interrupted:
+            if not frames:
+                raise KeyboardInterrupt
+            warnings.warn(
+                f"sweep interrupted: returning {len(frames)} of {len(markets)} points (see "
+                "the replications column: the last point may have fewer)",
+                RuntimeWarning, stacklevel=3,
+            )
+            break
+    return frames
 
 
 def _large_market_point(market: Market, treatment: Treatment, arm_likes: list[ArmLike],
@@ -443,7 +466,10 @@ def plan_horizon(
     for horizon, child in ((pilot, first), (pilot * factor, second)):
         study = Study(market, treatment, [arm], horizon=horizon, burn_in=burn_in,
                       metric=metric)
-        runs.append(study.run(replications, seed=child, workers=workers, progress=progress))
+        run = study.run(replications, seed=child, workers=workers, progress=progress)
+        if run.interrupted:
+            raise KeyboardInterrupt("plan_horizon stopped: a plan needs both pilot studies")
+        runs.append(run)
     short, long = runs[0].summary, runs[1].summary
     log_ratio = math.log(factor)
     rows, notes = [], []
@@ -535,6 +561,10 @@ class DesignChoice:
     recommended: pd.Series
     notes: tuple[str, ...]
     result: StudyResult
+
+    def to_frame(self) -> pd.DataFrame:
+        """The ranked table (a copy)."""
+        return self.table.copy()
 
     def report(self) -> str:
         """The recommendation in words."""

@@ -220,3 +220,27 @@ def test_sweep_of_a_design_that_follows_balance_with_chosen_estimators():
                                            [0.3, 1.0, 3.0],
                                            estimators=[ms.CustomerSideEstimator()])
     assert np.allclose(table["bias"], reference["bias"], rtol=1e-12, atol=0.0)
+
+
+@pytest.mark.filterwarnings("ignore:study interrupted")
+def test_ctrl_c_during_a_simulation_sweep_keeps_the_points_finished(monkeypatch):
+    """Ctrl-C stops the whole sweep (not just the current point) and returns what
+    finished, with a warning."""
+    import marketsim.study as study_module
+
+    calls = {"n": 0}
+    real = study_module._replicate
+
+    def interrupted_in_second_point(*args):
+        if calls["n"] == 7:  # 4 replications of the first point, 3 of the second
+            raise KeyboardInterrupt
+        calls["n"] += 1
+        return real(*args)
+
+    monkeypatch.setattr(study_module, "_replicate", interrupted_in_second_point)
+    with pytest.warns(RuntimeWarning, match="sweep interrupted: returning 2 of 3 points"):
+        table = sweep(ms.scenarios.rehearsal_rooms(), ms.scenarios.instant_confirmation(),
+                      [ms.CustomerSide(0.5)], values=[0.5, 1.0, 2.0], mode="simulation",
+                      horizon=10.0, replications=4, seed=1, progress=False)
+    assert table["value"].tolist() == [0.5, 1.0]
+    assert table["replications"].tolist() == [4, 3]
