@@ -16,7 +16,7 @@ market = ms.scenarios.rehearsal_rooms().scaled(25)  # 1,000 listings
 table = ms.meanfield.sweep_balance(
     market, ms.scenarios.instant_confirmation(),
     designs=[ms.CustomerSide(0.5), ms.ListingSide(0.5), ms.TwoSided(0.5, 0.5),
-             ms.TwoSided.for_balance],
+             ms.TwoSidedFollowingBalance()],
     balances=np.logspace(-2, 2, 61),
 )
 figure = plot_balance_sweep(

@@ -691,10 +691,11 @@ def sweep_balance(
     market : Market
     treatment : Treatment
     designs : Design, callable, or a list or dict of them
-        A :class:`~marketsim.Design`, or a callable ``balance -> Design`` for
-        designs that follow balance (``ms.TwoSided.for_balance`` can be passed as
-        it is). A dict gives each design its label in the table; otherwise the
-        label is the design's :attr:`~marketsim.Design.label` or the callable's name.
+        A :class:`~marketsim.Design` (:class:`~marketsim.TwoSidedFollowingBalance`
+        follows balance by itself), or a callable ``balance -> Design``
+        (``ms.TwoSided.for_balance`` can be passed as it is). A dict gives each
+        design its label in the table; otherwise the label is the design's
+        :attr:`~marketsim.Design.label` or the callable's name.
     balances : array_like of float
         Balances to visit, each > 0.
     estimators : iterable of Estimator, optional
