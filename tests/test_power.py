@@ -2,6 +2,8 @@
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from statsmodels.stats.power import NormalIndPower
 
 from marketsim.power import (
@@ -83,3 +85,43 @@ def test_bias_raises_power_but_not_truthfully():
 def test_bad_input(call, message):
     with pytest.raises(ValueError, match=message.replace("(", r"\(").replace(".", r"\.")):
         call()
+
+
+# ----------------------------------------------------------------- invariants (hypothesis)
+
+effects = st.floats(-5, 5).filter(lambda x: abs(x) > 1e-3)
+errors = st.floats(0.05, 5)
+
+
+@settings(max_examples=200, deadline=None)
+@given(effect=effects, se=errors, alpha=st.sampled_from([0.01, 0.05, 0.1]))
+def test_unbiased_test_properties(effect, se, alpha):
+    """Without bias: power is at least alpha, a significant result has the wrong sign
+    at most half the time, and significant results never understate on average
+    (E[|X| given |X| > c] >= E|X| >= |mu|, Jensen)."""
+    result = power_with_bias(effect, 0.0, se, alpha)
+    assert alpha - 1e-12 <= result.power <= 1.0
+    assert 0.0 <= result.type_s <= 0.5
+    assert result.type_m >= 1.0 - 1e-9
+
+
+@settings(max_examples=200, deadline=None)
+@given(effect=effects, bias=st.floats(-3, 3), se=errors)
+def test_mirror_symmetry(effect, bias, se):
+    """Flipping the sign of effect and bias changes nothing."""
+    here = power_with_bias(effect, bias, se)
+    mirrored = power_with_bias(-effect, -bias, se)
+    assert here.power == pytest.approx(mirrored.power, rel=1e-9, abs=1e-12)
+    assert here.type_s == pytest.approx(mirrored.type_s, rel=1e-9, abs=1e-12)
+    assert here.type_m == pytest.approx(mirrored.type_m, rel=1e-9, abs=1e-12)
+
+
+@settings(max_examples=200, deadline=None)
+@given(sigma=errors, effect=effects, scale=st.floats(0.1, 10),
+       power=st.floats(0.5, 0.95))
+def test_sample_size_depends_on_effect_over_sigma_only(sigma, effect, scale, power):
+    """n depends on sigma / effect only, and grows with the power asked for."""
+    n = sample_size_per_group(sigma, effect, power=power)
+    assert n == pytest.approx(sample_size_per_group(scale * sigma, scale * effect,
+                                                    power=power), rel=1e-9)
+    assert sample_size_per_group(sigma, effect, power=min(power + 0.04, 0.99)) > n
