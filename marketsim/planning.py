@@ -35,7 +35,7 @@ from marketsim.estimators import METRICS
 from marketsim.market import Market, Treatment
 from marketsim.power import detectable_standard_error, power_with_bias
 from marketsim.randomness import SeedLike, spawn
-from marketsim.study import Arm, Study, StudyResult
+from marketsim.study import Arm, Study, StudyResult, rmse_influence
 
 ArmLike = Arm | Design | Callable[[float], Design]
 """An arm, a design, or a callable ``balance -> Design`` (e.g. ``ms.TwoSided.for_balance``)."""
@@ -641,12 +641,12 @@ def choose_design(
     if len(table) > 1:
         runner = table.iloc[1]
         gap = runner["rmse"] - best["rmse"]
-        noise = math.hypot(best["rmse_mc_se"], runner["rmse_mc_se"])
+        noise = _rmse_difference_error(result, best, runner)
         if gap < 2.0 * noise:
             notes.append(
                 f"The runner-up ({runner['arm']}, {runner['estimator']}) is within Monte "
                 f"Carlo error (RMSE {runner['rmse']:.3g} against {best['rmse']:.3g}, "
-                f"difference {gap:.2g}, Monte Carlo s.e. about {noise:.2g}); more "
+                f"difference {gap:.2g}, paired Monte Carlo s.e. {noise:.2g}); more "
                 "replications would separate them."
             )
     if best["bias_share"] > 0.5:
@@ -656,6 +656,27 @@ def choose_design(
         )
     notes.append(result.caveats)
     return DesignChoice(table=table, recommended=best, notes=tuple(notes), result=result)
+
+
+def _rmse_difference_error(result: StudyResult, first: pd.Series, second: pd.Series) -> float:
+    """Monte Carlo standard error of the difference of two rows' RMSEs.
+
+    Every arm of a study shares its replication's random numbers with the global
+    worlds and the other arms (and estimators on one arm share its ledger), so the
+    two RMSEs are correlated: the error is computed from the paired per-replication
+    influence values (:func:`marketsim.study.rmse_influence`), not as if the rows
+    were independent.
+    """
+    raw = result.replications
+
+    def influence(row: pd.Series) -> np.ndarray:
+        mine = raw[(raw["arm"] == row["arm"]) & (raw["estimator"] == row["estimator"])
+                   & (raw["metric"] == row["metric"])].sort_values("replication")
+        return rmse_influence(mine["estimate"].to_numpy(float),
+                              mine["replication_truth"].to_numpy(float))
+
+    difference = influence(first) - influence(second)
+    return float(np.std(difference, ddof=1) / math.sqrt(difference.size))
 
 
 __all__ = [

@@ -613,7 +613,8 @@ class StudyResult:
           ``relative_bias_mc_se``: its delta-method (ratio-estimator) standard
           error, which accounts for the error of ``T`` too.
         - ``sd``: standard deviation of ``e_r`` (the real noise of the estimator).
-        - ``rmse``: ``sqrt(mean((e_r - T)**2))``; ``rmse_mc_se`` by the delta method.
+        - ``rmse``: ``sqrt(mean((e_r - T)**2))``; ``rmse_mc_se`` by the delta method,
+          which accounts for the error of ``T`` too (:func:`rmse_influence`).
         - ``mean_naive_se``: mean of ``s_r``, the standard error an analyst who
           treats units as independent would report; compare it with ``sd``.
         - ``coverage``: share of replications whose nominal 95% interval
@@ -778,9 +779,8 @@ def _score(e: np.ndarray, s: np.ndarray, t: np.ndarray) -> dict[str, float]:
     else:
         relative, relative_se = math.nan, math.nan
     deviation = e - truth
-    mse = float(np.mean(deviation**2))
-    rmse = math.sqrt(mse)
-    rmse_se = float(np.std(deviation**2, ddof=1) / root / (2.0 * rmse)) if rmse > 0 else 0.0
+    rmse = math.sqrt(float(np.mean(deviation**2)))
+    rmse_se = float(np.std(rmse_influence(e, t), ddof=1) / root)
     covered = float(np.mean(np.abs(deviation) <= Z_95 * s))
     return {
         "truth": truth,
@@ -798,6 +798,25 @@ def _score(e: np.ndarray, s: np.ndarray, t: np.ndarray) -> dict[str, float]:
         "coverage_mc_se": math.sqrt(covered * (1.0 - covered) / n),
         "replications": n,
     }
+
+
+def rmse_influence(e: np.ndarray, t: np.ndarray) -> np.ndarray:
+    """Per-replication influence values of ``rmse = sqrt(mean((e_r - T)**2))``, ``T =
+    mean(t_r)``: their standard deviation over ``sqrt(n)`` is the delta-method Monte
+    Carlo standard error of the RMSE, and that of the difference of two rows' values
+    is the paired standard error of the difference of their RMSEs.
+
+    The truth ``T`` is itself a Monte Carlo mean, so it enters too:
+    ``d(mse)/dT = -2 bias`` gives ``((e_r - T)**2 - 2 bias (t_r - T)) / (2 rmse)``
+    (up to a constant). All zero when the RMSE is 0.
+    """
+    truth = float(t.mean())
+    deviation = e - truth
+    rmse = math.sqrt(float(np.mean(deviation**2)))
+    if rmse == 0.0:
+        return np.zeros_like(deviation)
+    bias = float(deviation.mean())
+    return (deviation**2 - 2.0 * bias * (t - truth)) / (2.0 * rmse)
 
 
 def default_workers() -> int:

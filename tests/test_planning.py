@@ -244,3 +244,25 @@ def test_ctrl_c_during_a_simulation_sweep_keeps_the_points_finished(monkeypatch)
                       horizon=10.0, replications=4, seed=1, progress=False)
     assert table["value"].tolist() == [0.5, 1.0]
     assert table["replications"].tolist() == [4, 3]
+
+
+def test_runner_up_note_uses_the_paired_monte_carlo_error():
+    """Two estimators on the same ledgers, one the other times 1.1, under a null
+    treatment (the global worlds share their random numbers, so every replication's
+    truth is exactly 0): the second RMSE is exactly 1.1 times the first, so the gap is
+    real however few the replications, and the runner-up must not be called "within
+    Monte Carlo error". Treating the two rows as independent (the hypotenuse of their
+    standard errors, about 1.5 s.e.) would call a gap of 0.1 RMSE ~ 0.1 sqrt(2 n) s.e.
+    noise; the paired error is 0.1 s.e."""
+
+    class Inflated(ms.Estimator):
+        def weights(self, split, market):
+            return 1.1 * ms.CustomerSideEstimator().weights(split, market)
+
+    arm = ms.Arm(ms.CustomerSide(0.5), [ms.CustomerSideEstimator(), Inflated()])
+    choice = choose_design(ms.scenarios.rehearsal_rooms(), ms.Treatment(), horizon=20.0,
+                           candidates=[arm], replications=20, seed=4, progress=False)
+    table = choice.table
+    assert (choice.result.replications["replication_truth"] == 0.0).all()
+    assert table["rmse"].iloc[1] == pytest.approx(1.1 * table["rmse"].iloc[0], rel=1e-9)
+    assert not any("runner-up" in note for note in choice.notes), choice.notes
