@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike
 
+from marketsim import _validation as check
 from marketsim.designs import CellSplit, Design, GlobalControl
 from marketsim.market import NO_TREATMENT, Market, Treatment
 
@@ -92,13 +93,18 @@ class MarketCells:
         """
         kind = "whole numbers" if whole else "available listings"
         shape = (self.n_listing_cells,)
-        array = np.asarray(values)
+        try:
+            array = np.asarray(values)
+        except ValueError:  # ragged nesting
+            array = np.asarray(None)
         if array.shape != shape:
             raise ValueError(
                 f"start must be 'empty', 'steady' or {kind} of shape (n_listing_cells,) "
                 f"= {shape} ({', '.join(self.listing_labels)}), got shape {array.shape}"
             )
         try:
+            if check.first_non_number(array) is not check.ALL_NUMBERS:
+                raise ValueError
             numeric = array.astype(float)
         except (TypeError, ValueError):
             raise ValueError(f"start must contain {kind}, got {array.tolist()}") from None
@@ -147,6 +153,12 @@ def build_cells(
             f"got {type(design).__name__}"
         )
     split = design.split(market)
+    if not isinstance(split, CellSplit):
+        raise ValueError(
+            f"design {design!r}: split(market) must return a marketsim.CellSplit, "
+            f"got {type(split).__name__}"
+        )
+    split.check_market(market, f"design {design!r}")
     treated_utility, treated_consideration, treated_outside = treatment.resolve(market)
 
     ci, lj = split.customer_type, split.listing_type

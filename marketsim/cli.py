@@ -13,6 +13,7 @@ from __future__ import annotations
 import argparse
 import sys
 from collections.abc import Sequence
+from pathlib import Path
 
 from marketsim.full_report import write_full_report
 from marketsim.scenario_file import load_scenario
@@ -51,18 +52,32 @@ def main(argv: Sequence[str] | None = None) -> int:
     if args.command == "scenario-template":
         sys.stdout.write(rehearsal_rooms_scenario().to_json())
         return 0
+    command = demo if args.command == "demo" else report
     if args.replications < 2:
-        parser.error(f"--replications must be a whole number >= 2, got {args.replications}")
+        command.error(f"--replications must be a whole number >= 2, got {args.replications}")
     if args.workers is not None and args.workers < 1:
-        parser.error(f"--workers must be a whole number >= 1, got {args.workers}")
+        command.error(f"--workers must be a whole number >= 1, got {args.workers}")
+    if args.seed < 0:
+        command.error(f"--seed must be a whole number >= 0, got {args.seed}")
     if args.command == "demo":
         scenario = rehearsal_rooms_scenario()
-        print("The scenario and its numbers are invented.")
     else:
         try:
             scenario = load_scenario(args.scenario)
         except ValueError as error:
-            parser.error(str(error))
-    write_full_report(scenario, replications=args.replications, seed=args.seed,
-                      out=args.out, workers=args.workers)
+            command.error(str(error))
+    try:
+        Path(args.out).mkdir(parents=True, exist_ok=True)
+    except OSError as error:
+        command.error(f"--out must be a folder that can be created, got {args.out!r}: "
+                      f"{error.strerror or error}")
+    if args.command == "demo":
+        print("The scenario and its numbers are invented.")
+    try:
+        write_full_report(scenario, replications=args.replications, seed=args.seed,
+                          out=args.out, workers=args.workers)
+    except ValueError as error:
+        # e.g. a market too small for the report's designs; the library's messages
+        # name the cause, so say it as a usage error rather than a traceback
+        command.error(f"the report cannot run on this scenario: {error}")
     return 0

@@ -61,6 +61,27 @@ class CellSplit:
     listing_treated: np.ndarray
     listing_count: np.ndarray
 
+    def __post_init__(self) -> None:
+        """Check the split on its own (:meth:`check_market` checks it against a market)
+        and store every field as a read-only array of the documented dtype."""
+        set_ = object.__setattr__
+        for side, fields in (("customer", ("customer_type", "customer_treated",
+                                           "customer_share")),
+                             ("listing", ("listing_type", "listing_treated",
+                                          "listing_count"))):
+            arrays = [_cell_field(name, getattr(self, name)) for name in fields]
+            lengths = [a.size for a in arrays]
+            if min(lengths) == 0 or len(set(lengths)) > 1:
+                raise ValueError(
+                    f"{', '.join(fields)} must have the same length >= 1 (one entry per "
+                    f"{side} cell), got lengths {lengths}"
+                )
+            for name, values in zip(fields, arrays):
+                set_(self, name, _frozen(values))
+        total = float(self.customer_share.sum())
+        if abs(total - 1.0) > 1e-9:
+            raise ValueError(f"customer_share must sum to 1, got sum {total!r}")
+
     @classmethod
     def from_fractions(
         cls, market: Market, customers: float | ArrayLike, listings: float | ArrayLike
@@ -82,6 +103,8 @@ class CellSplit:
         CellSplit
             Cells with no customers or no listings are left out.
         """
+        if not isinstance(market, Market):
+            raise ValueError(f"market must be a marketsim.Market, got {type(market).__name__}")
         customer_fraction = check.array(
             "customers", customers, (market.n_customer_types,), "(n_customer_types,)",
             low=0.0, high=1.0, broadcast=True)
@@ -114,6 +137,64 @@ class CellSplit:
             listing_count=_frozen(np.array(l_count, dtype=np.int64)),
         )
 
+    def stratum(self, listing_type: int) -> CellSplit:
+        """The split restricted to the listing cells of one listing type (every
+        customer cell kept): its :attr:`listing_fraction` is that type's own
+        treated share."""
+        keep = self.listing_type == listing_type
+        return CellSplit(
+            customer_type=self.customer_type,
+            customer_treated=self.customer_treated,
+            customer_share=self.customer_share,
+            listing_type=_frozen(self.listing_type[keep].copy()),
+            listing_treated=_frozen(self.listing_treated[keep].copy()),
+            listing_count=_frozen(self.listing_count[keep].copy()),
+        )
+
+    def check_market(self, market: Market, source: str = "the split") -> None:
+        """Check that the split divides ``market`` and changes nothing else: every
+        listing type's cells hold all its listings, every customer type's cells all
+        its share of arrivals.
+
+        Parameters
+        ----------
+        market : Market
+        source : str
+            Who made the split, for the error message (e.g. the design).
+
+        Raises
+        ------
+        ValueError
+            Naming ``source``, the field, the type and what it got.
+        """
+        for name, types, n_types in (
+                ("customer_type", self.customer_type, market.n_customer_types),
+                ("listing_type", self.listing_type, market.n_listing_types)):
+            if types.max() >= n_types:
+                raise ValueError(
+                    f"{source}: {name} must be below the market's {n_types} types, got "
+                    f"{int(types.max())}"
+                )
+        counts = np.bincount(self.listing_type, weights=self.listing_count,
+                             minlength=market.n_listing_types)
+        for j, (got, want) in enumerate(zip(counts, market.listing_counts)):
+            if got != want:
+                raise ValueError(
+                    f"{source}: listing_count of the cells of listing type "
+                    f"{market.listing_types[j]!r} must add up to its {int(want)} listings, "
+                    f"got {int(got)}"
+                )
+        shares = np.bincount(self.customer_type, weights=self.customer_share,
+                             minlength=market.n_customer_types)
+        wanted = market.customer_shares / market.customer_shares.sum()
+        for i, (got, want) in enumerate(zip(shares, wanted)):
+            if abs(got - want) > 1e-9:
+                raise ValueError(
+                    f"{source}: customer_share of the cells of customer type "
+                    f"{market.customer_types[i]!r} must add up to its share {float(want)!r}, "
+                    f"got {float(got)!r}"
+                )
+
     @property
     def customer_fraction(self) -> float:
         """Share of arriving customers who are treated (``a_C``)."""
@@ -128,6 +209,28 @@ class CellSplit:
 def _frozen(values: np.ndarray) -> np.ndarray:
     values.flags.writeable = False
     return values
+
+
+def _cell_field(name: str, value: object) -> np.ndarray:
+    """One field of a :class:`CellSplit` as a fresh 1-d array of its dtype."""
+    try:
+        values = np.array(value)
+    except (TypeError, ValueError):  # ragged nesting
+        values = np.array(None)
+    if name.endswith("_treated"):
+        if values.ndim != 1 or (values.size and values.dtype.kind != "b"):
+            raise ValueError(f"{name} must be a 1-d array of True/False, got "
+                             f"{check._shown(value)}")
+        return values.astype(bool)
+    if name == "customer_share":
+        return check.array(name, value, (None,), "(n_customer_cells,)", low=0.0,
+                           low_open=True, high=1.0).copy()
+    low = 1 if name == "listing_count" else 0
+    if values.ndim != 1 or (values.size and (values.dtype.kind not in "iu"
+                                             or values.min() < low)):
+        raise ValueError(f"{name} must be a 1-d array of whole numbers >= {low}, got "
+                         f"{check._shown(value)}")
+    return values.astype(np.int64)
 
 
 class Design(ABC):
@@ -238,8 +341,8 @@ class CustomerSide(Design):
     treated: float = 0.5
 
     def __post_init__(self) -> None:
-        check.number("treated", self.treated, low=0.0, high=1.0, low_open=True,
-                     high_open=True)
+        object.__setattr__(self, "treated", check.number(
+            "treated", self.treated, low=0.0, high=1.0, low_open=True, high_open=True))
 
     def split(self, market: Market) -> CellSplit:
         return CellSplit.from_fractions(market, customers=self.treated, listings=1.0)
@@ -264,9 +367,11 @@ class ListingSide(Design):
     treated : float
         Treated share of listings ``a_L``, in (0, 1). Each type is stratified:
         ``floor(treated * n_j + 0.5)`` of its ``n_j`` listings are treated, so the
-        realised share can differ slightly from ``treated``; estimators use the
-        realised share. For example ``ListingSide(0.5)`` treats 2 of 3 listings of
-        a type with 3 (1.5 rounds up) and 1 of a type with 1 (0.5 rounds up).
+        realised share can differ slightly from ``treated`` and from type to type;
+        estimators are stratified by listing type and use each type's realised
+        share (see :class:`~marketsim.Estimator`). For example ``ListingSide(0.5)``
+        treats 2 of 3 listings of a type with 3 (1.5 rounds up) and 1 of a type
+        with 1 (0.5 rounds up).
 
     Examples
     --------
@@ -284,8 +389,8 @@ class ListingSide(Design):
     treated: float = 0.5
 
     def __post_init__(self) -> None:
-        check.number("treated", self.treated, low=0.0, high=1.0, low_open=True,
-                     high_open=True)
+        object.__setattr__(self, "treated", check.number(
+            "treated", self.treated, low=0.0, high=1.0, low_open=True, high_open=True))
 
     def split(self, market: Market) -> CellSplit:
         return CellSplit.from_fractions(market, customers=1.0, listings=self.treated)
@@ -326,8 +431,10 @@ class TwoSided(Design):
     listings: float = 0.5
 
     def __post_init__(self) -> None:
-        check.number("customers", self.customers, low=0.0, high=1.0, low_open=True)
-        check.number("listings", self.listings, low=0.0, high=1.0, low_open=True)
+        object.__setattr__(self, "customers", check.number(
+            "customers", self.customers, low=0.0, high=1.0, low_open=True))
+        object.__setattr__(self, "listings", check.number(
+            "listings", self.listings, low=0.0, high=1.0, low_open=True))
         if self.customers == 1.0 and self.listings == 1.0:
             raise ValueError(
                 "customers and listings must not both be 1 (that is global treatment), "
@@ -427,10 +534,9 @@ class TwoSidedFollowingBalance(Design):
     listings: float = 0.5
 
     def __post_init__(self) -> None:
-        check.number("customers", self.customers, low=0.0, high=1.0, low_open=True,
-                     high_open=True)
-        check.number("listings", self.listings, low=0.0, high=1.0, low_open=True,
-                     high_open=True)
+        for name in ("customers", "listings"):
+            object.__setattr__(self, name, check.number(
+                name, getattr(self, name), low=0.0, high=1.0, low_open=True, high_open=True))
 
     def at(self, balance: float) -> TwoSided:
         """The two-sided design this one is at ``balance``."""

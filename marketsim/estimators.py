@@ -76,14 +76,17 @@ class Estimate:
 
 @dataclass(frozen=True, eq=False)
 class GroupTotals:
-    """A ledger's bookings summed by (customer status, listing status) group.
+    """A ledger's bookings summed by listing type and (customer status, listing
+    status) group.
 
     Attributes
     ----------
     metric : str
-    totals : ndarray, shape (2, 2)
-        Sum of the metric's value of each booking (1, or the price for revenue).
-    squares : ndarray, shape (2, 2)
+    totals : ndarray, shape (n_listing_types, 2, 2)
+        Sum of the metric's value of each booking (1, or the price for revenue):
+        ``totals[j, x, y]`` for listing type ``j``, customer status ``x`` and
+        listing status ``y``.
+    squares : ndarray, shape (n_listing_types, 2, 2)
         Sum of the squared values.
     arrivals : ndarray, shape (2,)
         Arrivals of control and treated customers in the window.
@@ -100,7 +103,7 @@ class GroupTotals:
 
     @classmethod
     def of(cls, ledger: Ledger, metric: str = "bookings") -> GroupTotals:
-        """Sum ``ledger`` by group for ``metric``."""
+        """Sum ``ledger`` by listing type and group for ``metric``."""
         check.choice("metric", metric, METRICS)
         cells = ledger.cells
         value = np.ones(cells.n_listing_cells)
@@ -112,20 +115,24 @@ class GroupTotals:
                 )
             value = cells.price
         bookings = np.asarray(ledger.bookings, dtype=float)
-        totals = np.zeros((2, 2))
-        squares = np.zeros((2, 2))
-        customer = cells.split.customer_treated.astype(int)
-        listing = cells.split.listing_treated.astype(int)
-        np.add.at(totals, (customer[:, None], listing[None, :]), bookings * value[None, :])
-        np.add.at(squares, (customer[:, None], listing[None, :]),
-                  bookings * (value**2)[None, :])
+        shape = (cells.market.n_listing_types, 2, 2)
+        totals, squares = np.zeros(shape), np.zeros(shape)
+        customer = cells.split.customer_treated.astype(int)[:, None]
+        listing = cells.split.listing_treated.astype(int)[None, :]
+        kind = cells.split.listing_type[None, :]
+        np.add.at(totals, (kind, customer, listing), bookings * value[None, :])
+        np.add.at(squares, (kind, customer, listing), bookings * (value**2)[None, :])
         arrivals = np.zeros(2)
-        np.add.at(arrivals, customer, np.asarray(ledger.arrivals, dtype=float))
+        np.add.at(arrivals, customer[:, 0], np.asarray(ledger.arrivals, dtype=float))
         scale = ledger.window if metric != "conversion" else max(ledger.arrival_count, 1.0)
         return cls(metric, totals, squares, arrivals, float(scale))
 
     def combine(self, weights: np.ndarray) -> Estimate:
-        """``sum(weights * Q)`` with its naive standard error (see the module notes)."""
+        """``sum(weights * Q)`` with its naive standard error (see the module notes).
+
+        ``weights`` has shape (n_listing_types, 2, 2), as from
+        :meth:`Estimator.stratum_weights`.
+        """
         value = float(np.sum(weights * self.totals)) / self.scale
         if self.metric != "conversion":
             variance = float(np.sum(weights**2 * self.squares))
@@ -133,8 +140,8 @@ class GroupTotals:
             variance = 0.0
             for x in (0, 1):
                 if self.arrivals[x] > 0:
-                    spread = float(np.sum(weights[x] ** 2 * self.squares[x]))
-                    mean = float(np.sum(weights[x] * self.totals[x]))
+                    spread = float(np.sum(weights[:, x] ** 2 * self.squares[:, x]))
+                    mean = float(np.sum(weights[:, x] * self.totals[:, x]))
                     variance += max(spread - mean**2 / self.arrivals[x], 0.0)
         return Estimate(value, math.sqrt(variance) / self.scale)
 
@@ -170,7 +177,7 @@ def group_rates(ledger: Ledger, metric: str = "bookings") -> tuple[np.ndarray, n
         own standard error also accounts for the arrivals: :meth:`GroupTotals.combine`.)
     """
     groups = GroupTotals.of(ledger, metric)
-    return groups.totals / groups.scale, groups.squares / groups.scale**2
+    return groups.totals.sum(axis=0) / groups.scale, groups.squares.sum(axis=0) / groups.scale**2
 
 
 def metric_rate(ledger: Ledger, metric: str = "bookings") -> float:
@@ -190,7 +197,17 @@ class Estimator(ABC):
     design's treated fractions. It raises ``ValueError`` when the design does
     not fit (for example a listing-side estimator on a design that treats no
     listings, or all of them). The base class supplies :meth:`estimate` (value
-    and naive standard error, for every metric) and a :attr:`name`. Keep
+    and naive standard error, for every metric) and a :attr:`name`.
+
+    The formula is applied within each listing type, with that type's own
+    treated share of listings, and summed over the types
+    (:meth:`stratum_weights`): a stratified estimator, as the stratified
+    randomization of listings calls for. When every type has the same treated
+    share this is exactly the formula on the whole market; when rounding to
+    whole listings gives the types different shares, it keeps the estimate free
+    of the bias that mixing them would cause. A type the formula cannot use (for
+    the listing-side estimator, one with no treated or no control listings)
+    contributes :meth:`fallback_weights`, by default nothing. Keep
     subclasses picklable (plain classes or frozen dataclasses) so that
     :class:`marketsim.Study` can use them in worker processes.
 
@@ -223,6 +240,29 @@ class Estimator(ABC):
     def weights(self, split: CellSplit, market: Market) -> np.ndarray:
         """Coefficients ``c[x, y]`` with ``estimate = sum(c * Q)``, shape (2, 2)."""
 
+    def fallback_weights(self, stratum: CellSplit, market: Market) -> np.ndarray:
+        """Coefficients for a listing type where :meth:`weights` does not fit;
+        zeros: the type contributes nothing."""
+        return np.zeros((2, 2))
+
+    def stratum_weights(self, split: CellSplit, market: Market) -> np.ndarray:
+        """Coefficients per listing type, shape (n_listing_types, 2, 2).
+
+        Raises
+        ------
+        ValueError
+            If the design as a whole does not fit (the message of :meth:`weights`).
+        """
+        self.weights(split, market)
+        result = np.zeros((market.n_listing_types, 2, 2))
+        for kind in np.unique(split.listing_type):
+            stratum = split.stratum(kind)
+            try:
+                result[kind] = self.weights(stratum, market)
+            except ValueError:
+                result[kind] = self.fallback_weights(stratum, market)
+        return result
+
     def estimate(self, ledger: Ledger, metric: str = "bookings") -> Estimate:
         """Apply the estimator to one ledger.
 
@@ -238,7 +278,7 @@ class Estimator(ABC):
         """
         groups = GroupTotals.of(ledger, metric)
         split = groups.analysis_split(ledger.cells.split)
-        return groups.combine(self.weights(split, ledger.cells.market))
+        return groups.combine(self.stratum_weights(split, ledger.cells.market))
 
     def __repr__(self) -> str:
         return self.name
@@ -360,6 +400,14 @@ class TwoSidedCorrected(Estimator):
         suffix = "" if self.beta is None else f", beta={self.beta:g}"
         return f"two-sided corrected (k={self.k}{suffix})"
 
+    def fallback_weights(self, stratum: CellSplit, market: Market) -> np.ndarray:
+        """On a listing type with only treated (or only control) listings neither
+        correction contrast exists: the naive estimator's coefficients there."""
+        try:
+            return TwoSidedNaive().weights(stratum, market)
+        except ValueError:
+            return np.zeros((2, 2))
+
     def weights(self, split: CellSplit, market: Market) -> np.ndarray:
         a_c = _fraction(split, "customers", self.name)
         a_l = _fraction(split, "listings", self.name)
@@ -397,14 +445,14 @@ def default_estimators(design: Design, market: Market) -> tuple[Estimator, ...]:
         Possibly empty (e.g. for a global design).
     """
     split = design.split(market)
-    customers = np.isin([False, True], split.customer_treated)
-    listings = np.isin([False, True], split.listing_treated)
-    present = customers[:, None] & listings[None, :]
+    present = np.zeros((market.n_listing_types, 2, 2), dtype=bool)
+    present[split.listing_type[None, :], split.customer_treated.astype(int)[:, None],
+            split.listing_treated.astype(int)[None, :]] = True
     chosen: list[Estimator] = []
     seen: list[np.ndarray] = []
     for estimator in design.default_estimators():
         try:
-            weights = np.where(present, estimator.weights(split, market), 0.0)
+            weights = np.where(present, estimator.stratum_weights(split, market), 0.0)
         except ValueError:
             continue
         if any(np.allclose(weights, other, rtol=1e-12, atol=0.0) for other in seen):

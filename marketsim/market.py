@@ -16,6 +16,8 @@ from numpy.typing import ArrayLike
 from marketsim import _validation as check
 
 SHARE_TOLERANCE = 1e-9
+MAX_LISTINGS = 2**53
+"""Most listings a market may have, per type and in all (counted exactly in float64)."""
 
 
 @dataclass(frozen=True, eq=False, init=False)
@@ -106,9 +108,9 @@ class Market:
     ) -> None:
         counts = _listing_counts(listing_counts)
         n_listing = counts.size
-        n_customer = int(np.size(customer_shares))
-        shares = check.array("customer_shares", customer_shares, (n_customer,),
+        shares = check.array("customer_shares", customer_shares, (None,),
                              "(n_customer_types,)", low=0.0, high=1.0)
+        n_customer = shares.size
         if shares.size == 0:
             raise ValueError("customer_shares must list at least one customer type, got []")
         if abs(shares.sum() - 1.0) > SHARE_TOLERANCE:
@@ -123,6 +125,14 @@ class Market:
         set_(self, "mean_busy_time", check.array(
             "mean_busy_time", mean_busy_time, (n_listing,), "(n_listing_types,)",
             low=0.0, low_open=True))
+        with np.errstate(divide="ignore", over="ignore"):
+            release = counts / self.mean_busy_time
+        if not np.isfinite(release).all():
+            k = int(np.argmin(np.isfinite(release)))
+            raise ValueError(
+                "mean_busy_time must be large enough that listing_counts / mean_busy_time "
+                f"is finite, got {float(self.mean_busy_time[k])!r} at index {k}"
+            )
         set_(self, "arrival_rate", check.number("arrival_rate", arrival_rate, low=0.0,
                                                 low_open=True))
         set_(self, "customer_shares", shares)
@@ -179,7 +189,12 @@ class Market:
         Listing counts are rounded to the nearest whole number, at least 1.
         """
         factor = check.number("factor", factor, low=0.0, low_open=True)
-        counts = np.maximum(1, np.rint(self.listing_counts * factor)).astype(np.int64)
+        counts = np.maximum(1.0, np.rint(self.listing_counts * factor))
+        if counts.sum() > MAX_LISTINGS:
+            raise ValueError(
+                f"factor must keep the market at most {MAX_LISTINGS} listings, got {factor!r} "
+                f"({counts.sum():.3g} listings)"
+            )
         grown = self.replace(listing_counts=counts)
         return grown.with_balance(self.balance)
 
@@ -274,7 +289,18 @@ def _listing_counts(value: object) -> np.ndarray:
                 f"listing_counts must contain whole numbers >= 1, got {check._shown(item)} "
                 f"at index {k}"
             ) from None
-    counts = np.array([int(x) for x in raw], dtype=np.int64)
+    values = [int(_as_int_like(x)) for x in raw]
+    for k, item in enumerate(values):
+        if item > MAX_LISTINGS:
+            raise ValueError(
+                f"listing_counts must contain whole numbers <= 2**53 = {MAX_LISTINGS}, got "
+                f"{item} at index {k}"
+            )
+    if sum(values) > MAX_LISTINGS:
+        raise ValueError(
+            f"listing_counts must add up to at most 2**53 = {MAX_LISTINGS}, got {sum(values)}"
+        )
+    counts = np.array(values, dtype=np.int64)
     counts.flags.writeable = False
     return counts
 
@@ -340,9 +366,11 @@ class Treatment:
         Raises
         ------
         ValueError
-            If a shift has the wrong shape for the market, or the treated
-            consideration would exceed 1.
+            If a shift has the wrong shape for the market, the treated
+            consideration would exceed 1 or a treated utility would overflow.
         """
+        if not isinstance(market, Market):
+            raise ValueError(f"market must be a marketsim.Market, got {type(market).__name__}")
         pair = (market.n_customer_types, market.n_listing_types)
         pair_text = "(n_customer_types, n_listing_types)"
         shift = check.array("utility_shift", self.utility_shift, pair, pair_text,
@@ -352,6 +380,18 @@ class Treatment:
         outside = check.array("outside_utility_shift", self.outside_utility_shift,
                               (market.n_customer_types,), "(n_customer_types,)",
                               broadcast=True)
+        with np.errstate(over="ignore"):
+            treated_utility = market.utility + shift
+            treated_outside = market.outside_utility + outside
+        for label, base, total, added in (
+                ("utility_shift", "utility", treated_utility, shift),
+                ("outside_utility_shift", "outside_utility", treated_outside, outside)):
+            if not np.isfinite(total).all():
+                where = tuple(int(i) for i in np.argwhere(~np.isfinite(total))[0])
+                raise ValueError(
+                    f"{label} plus the market's {base} must be finite, got "
+                    f"{float(added[where])!r} at index {where if len(where) > 1 else where[0]}"
+                )
         treated_consideration = market.consideration * factor
         if (treated_consideration > 1.0).any():
             where = tuple(int(i) for i in np.argwhere(treated_consideration > 1.0)[0])
@@ -359,7 +399,7 @@ class Treatment:
                 "consideration_factor times the market's consideration must be <= 1, "
                 f"got {float(treated_consideration[where])!r} for pair {where}"
             )
-        return market.utility + shift, treated_consideration, market.outside_utility + outside
+        return treated_utility, treated_consideration, treated_outside
 
     @property
     def is_null(self) -> bool:
@@ -387,6 +427,8 @@ def _scalar_or_array(name: str, value: object, low: float | None) -> float | np.
     if values.ndim == 0:
         return check.number(name, value, low=low)
     try:
+        if check.first_non_number(value) is not check.ALL_NUMBERS:
+            raise ValueError
         numeric = np.asarray(value, dtype=float)
     except (TypeError, ValueError):
         raise ValueError(f"{name} must be a number or an array of numbers, got {value!r}") \

@@ -642,7 +642,10 @@ def expected_estimates(
     Raises
     ------
     ValueError
-        If a given estimator does not fit the design (message from the estimator).
+        If a given estimator does not fit the design (message from the estimator),
+        or, with ``estimators=None``, none of the design's own estimators fits (for
+        example ``ListingSide(0.5)`` on a market whose every type has one listing:
+        rounding treats them all).
 
     Examples
     --------
@@ -796,13 +799,15 @@ def trajectory(
     if times[-1] <= 0.0:
         path = np.repeat(s0[None, :], times.size, axis=0)
     else:
-        sol = _integrate(model, s0, float(times[-1]), t_eval=times)
+        # the solver wants strictly increasing times; repeated times share a state
+        distinct, where = np.unique(times, return_inverse=True)
+        sol = _integrate(model, s0, float(times[-1]), t_eval=distinct)
         if sol is None or not sol.success:
             raise RuntimeError(
                 f"trajectory: the ODE solver failed ({getattr(sol, 'message', 'no result')}) "
                 f"for {market!r}; please report this market"
             )
-        path = np.clip(sol.y.T, 0.0, model.rho[None, :])
+        path = np.clip(sol.y.T[where], 0.0, model.rho[None, :])
     rates = np.empty((times.size, cells.n_customer_cells, cells.n_listing_cells))
     for k, s in enumerate(path):
         d = model.denominators(s)
@@ -880,6 +885,11 @@ def _labelled_designs(designs: object) -> list[tuple[str, DesignLike]]:
         items = [(str(k), v) for k, v in designs.items()]
     elif isinstance(designs, Design) or callable(designs):
         items = [(None, designs)]
+    elif isinstance(designs, (str, bytes)) or not isinstance(designs, Iterable):
+        raise ValueError(
+            "designs must be a marketsim.Design, a callable balance -> Design, or a list or "
+            f"dict of them, got {type(designs).__name__}"
+        )
     else:
         items = [(None, d) for d in designs]
     if not items:
@@ -913,6 +923,18 @@ def _estimate_rows(market: Market, treatment: Treatment, design: Design, label: 
     split = cells.split
     if estimators is None:
         estimators = list(default_estimators(design, market))
+        if not estimators and strict:
+            reasons = []
+            for estimator in design.default_estimators():
+                try:
+                    estimator.weights(split, market)
+                except ValueError as error:
+                    reasons.append(str(error))
+            raise ValueError(
+                f"design {label!r} has no estimator that fits it in this market "
+                f"({'; '.join(reasons) or 'it names none'}); pass estimators=[...] or use "
+                "another design"
+            )
     rows = []
     for estimator in estimators:
         try:
@@ -939,6 +961,8 @@ def _estimate_rows(market: Market, treatment: Treatment, design: Design, label: 
 
 def _times(t: ArrayLike) -> np.ndarray:
     try:
+        if check.first_non_number(t) is not check.ALL_NUMBERS:
+            raise ValueError
         times = np.asarray(t, dtype=float)
     except (TypeError, ValueError):
         raise ValueError(f"t must be an array of times >= 0, got {t!r}") from None

@@ -45,8 +45,9 @@ class Scenario:
         What the market is, for report titles.
     market : Market
     treatment : Treatment
+        Must fit the market and change its bookings (:func:`check_feature`).
     horizon : float
-        Planned length of the experiment, > 0.
+        Planned length of the experiment, > 0 (and at least ``1e-9 * burn_in``).
     burn_in : float
         Warm-up simulated before every measurement window, >= 0.
     minimum_effect : float
@@ -64,13 +65,13 @@ class Scenario:
     time_unit: str = "time unit"
 
     def __post_init__(self) -> None:
-        check.number("horizon", self.horizon, low=0.0, low_open=True)
-        check.number("burn_in", self.burn_in, low=0.0)
+        check.window(self.horizon, self.burn_in)
         check.number("minimum_effect", self.minimum_effect, low=0.0, low_open=True)
         for name in ("name", "time_unit"):
             value = getattr(self, name)
             if not isinstance(value, str) or not value.strip():
                 raise ValueError(f"{name} must be a non-empty string, got {value!r}")
+        check_feature(self.market, self.treatment)
 
     def to_dict(self) -> dict:
         """The scenario as plain JSON-ready data (the file format)."""
@@ -105,6 +106,38 @@ class Scenario:
         return json.dumps(self.to_dict(), indent=2) + "\n"
 
 
+def check_feature(market: Market, treatment: Treatment) -> None:
+    """Check that ``treatment`` applies to ``market`` and changes its bookings.
+
+    A scenario is there to measure a feature's effect: a treatment that does not
+    fit the market would fail at the first simulation, and one with no effect at
+    all (a null treatment, or a market where nobody can book) leaves every
+    relative figure of the report undefined.
+
+    Raises
+    ------
+    ValueError
+        Naming the treatment field, or saying that the effect is zero.
+    """
+    if not isinstance(market, Market):
+        raise ValueError(f"market must be a marketsim.Market, got {type(market).__name__}")
+    if not isinstance(treatment, Treatment):
+        raise ValueError(
+            f"treatment must be a marketsim.Treatment, got {type(treatment).__name__}")
+    try:
+        treatment.resolve(market)
+    except ValueError as error:
+        raise ValueError(f"treatment.{error}") from None
+    from marketsim.meanfield import gte
+
+    if gte(market, treatment) == 0.0:
+        raise ValueError(
+            "treatment must change bookings in the market, got a large-market effect of "
+            f"exactly 0 for {treatment!r} (a null treatment, or a market where nobody can "
+            "book)"
+        )
+
+
 def _plain(value: object) -> object:
     return value.tolist() if hasattr(value, "tolist") else value
 
@@ -135,15 +168,22 @@ def load_scenario(path: str | Path) -> Scenario:
         raise ValueError(f"scenario file {str(path)!r} does not exist") from None
     except json.JSONDecodeError as error:
         raise ValueError(f"scenario file {str(path)!r} is not valid JSON: {error}") from None
+    except UnicodeDecodeError as error:
+        raise ValueError(f"scenario file {str(path)!r} is not UTF-8 text: {error}") from None
+    except OSError as error:
+        raise ValueError(
+            f"scenario file {str(path)!r} cannot be read: {error.strerror or error}"
+        ) from None
     return scenario_from_dict(data)
 
 
 def scenario_from_dict(data: object) -> Scenario:
     """Build a :class:`Scenario` from the file format's data (see the module notes)."""
-    section = _section(data, "scenario", TOP_KEYS, required=("market", "experiment"))
+    section = _section(data, "scenario", TOP_KEYS,
+                       required=("market", "treatment", "experiment"))
     market_data = _section(section["market"], "market", MARKET_KEYS,
                            required=MARKET_KEYS[:7])
-    treatment_data = _section(section.get("treatment", {}), "treatment", TREATMENT_KEYS,
+    treatment_data = _section(section["treatment"], "treatment", TREATMENT_KEYS,
                               required=())
     experiment = _section(section["experiment"], "experiment", EXPERIMENT_KEYS,
                           required=("horizon", "minimum_effect"))
@@ -152,6 +192,7 @@ def scenario_from_dict(data: object) -> Scenario:
             raise ValueError(f"{key} must be a non-empty string, got {section[key]!r}")
     market = _prefixed("market", lambda: Market(**market_data))
     treatment = _prefixed("treatment", lambda: Treatment(**treatment_data))
+    check_feature(market, treatment)
     return _prefixed("experiment", lambda: Scenario(
         name=section.get("name", "a marketplace"),
         market=market,

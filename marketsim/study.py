@@ -243,7 +243,8 @@ def _replicate(plan: _Plan, root: tuple, index: int) -> _Outcome:
                 elif splits[m] is cells.split:
                     result = groups[m].combine(weights)
                 else:  # conversion: coefficients at the observed split of arrivals
-                    result = groups[m].combine(estimator.weights(splits[m], cells.market))
+                    result = groups[m].combine(
+                        estimator.stratum_weights(splits[m], cells.market))
                 estimates[row], errors[row] = result.value, result.standard_error
                 row += 1
     return _Outcome(levels, estimates, errors, int(events))
@@ -377,7 +378,7 @@ class Study:
         arm_worlds = [world(arm.design) for arm in self.arms]
         weights = tuple(
             tuple(
-                estimator.weights(cells.split, self.market)
+                estimator.stratum_weights(cells.split, self.market)
                 if type(estimator).estimate is Estimator.estimate else None
                 for estimator in estimators
             )

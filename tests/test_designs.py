@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass
 
 import numpy as np
@@ -183,3 +184,96 @@ def test_two_sided_following_balance_is_for_balance_at_each_market():
         "two-sided naive", "two-sided corrected (k=1)", "two-sided corrected (k=2)"]
     with pytest.raises(ValueError, match=r"listings must be a finite number in \(0, 1\)"):
         ms.TwoSidedFollowingBalance(listings=1.0)
+
+
+# ------------------------------------------------------- custom splits are checked
+def _split(**changes) -> dict:
+    """A valid split of ``three_type_market`` (booth 3, room 1, studio 5), changed."""
+    fields = dict(customer_type=[0, 1], customer_treated=[True, True],
+                  customer_share=[0.6, 0.4], listing_type=[0, 0, 1, 2],
+                  listing_treated=[False, True, False, False], listing_count=[2, 1, 1, 5])
+    fields.update(changes)
+    return fields
+
+
+@dataclass(frozen=True)
+class FixedSplit(ms.Design):
+    """A custom design that returns whatever it is given (for the checks below)."""
+
+    returned: object = None
+
+    def split(self, market):
+        return self.returned
+
+    def __repr__(self):
+        return "FixedSplit()"
+
+
+@pytest.mark.parametrize(
+    ("changes", "message"),
+    [
+        (dict(listing_count=[2, 1, 0, 5]), "listing_count must be a 1-d array of whole numbers "
+                                           ">= 1, got [2, 1, 0, 5]"),
+        (dict(listing_count=[2, 1.5, 1, 5]), "listing_count must be a 1-d array of whole "
+                                             "numbers >= 1, got [2, 1.5, 1, 5]"),
+        (dict(customer_type=[0, -1]), "customer_type must be a 1-d array of whole numbers "
+                                      ">= 0, got [0, -1]"),
+        (dict(customer_treated=[1, 0]), "customer_treated must be a 1-d array of True/False, "
+                                        "got [1, 0]"),
+        (dict(customer_share=[0.3, 0.2]), "customer_share must sum to 1, got sum 0.5"),
+        (dict(customer_share=[1.2, -0.2]), "customer_share must contain finite numbers in "
+                                           "(0, 1], got 1.2 at index 0"),
+        (dict(customer_treated=[True]), "customer_type, customer_treated, customer_share must "
+                                        "have the same length >= 1 (one entry per customer "
+                                        "cell), got lengths [2, 1, 2]"),
+        (dict(listing_type=[], listing_treated=[], listing_count=[]),
+         "listing_type, listing_treated, listing_count must have the same length >= 1"),
+    ],
+)
+def test_cell_split_checks_itself(changes, message):
+    with pytest.raises(ValueError, match=re.escape(message)):
+        ms.CellSplit(**_split(**changes))
+
+
+@pytest.mark.parametrize(
+    ("returned", "message"),
+    [
+        (None, "design FixedSplit(): split(market) must return a marketsim.CellSplit, got "
+               "NoneType"),
+        (ms.CellSplit(**_split(listing_count=[2, 1, 2, 5])),
+         "design FixedSplit(): listing_count of the cells of listing type 'room' must add up "
+         "to its 1 listings, got 2"),
+        (ms.CellSplit(**_split(listing_type=[0, 0, 2, 2], listing_count=[2, 1, 1, 4])),
+         "design FixedSplit(): listing_count of the cells of listing type 'room' must add up "
+         "to its 1 listings, got 0"),
+        (ms.CellSplit(**_split(customer_type=[0, 0])),
+         "design FixedSplit(): customer_share of the cells of customer type 'solo' must add "
+         "up to its share 0.6, got 1.0"),
+        (ms.CellSplit(**_split(customer_type=[0, 2])),
+         "design FixedSplit(): customer_type must be below the market's 2 types, got 2"),
+    ],
+    ids=["none", "extra-listings", "missing-type", "customer-share", "type-out-of-range"],
+)
+def test_custom_split_must_divide_the_market(returned, message):
+    # before: IndexError, AttributeError, or a silently different market (negative
+    # availability, customers of one type counted as another)
+    design = FixedSplit(returned)
+    with pytest.raises(ValueError, match=re.escape(message)):
+        ms.simulate(three_type_market(), design=design, horizon=1.0)
+    with pytest.raises(ValueError, match=re.escape(message)):
+        ms.meanfield.steady_state(three_type_market(), design=design)
+
+
+def test_custom_split_given_as_lists_is_stored_as_arrays():
+    split = ms.CellSplit(**_split())
+    assert split.listing_count.dtype == np.int64 and split.customer_treated.dtype == bool
+    assert not split.listing_count.flags.writeable
+    ledger = ms.simulate(three_type_market(), ms.Treatment(utility_shift=0.2),
+                         FixedSplit(split), horizon=5.0, seed=0)
+    assert ledger.bookings.shape == (2, 4)
+
+
+def test_from_fractions_checks_its_market():
+    message = "market must be a marketsim.Market, got NoneType"
+    with pytest.raises(ValueError, match=re.escape(message)):
+        ms.CellSplit.from_fractions(None, customers=0.5, listings=0.5)

@@ -232,3 +232,43 @@ def test_estimate_interval_is_normal_theory(ledger):
     assert (high - low) / 2 == pytest.approx(1.959963984540054 * estimate.standard_error)
     with pytest.raises(ValueError, match=r"level must be a finite number in \(0, 1\)"):
         estimate.interval(1.0)
+
+
+def test_stratified_by_listing_type_so_rounding_cannot_fake_an_effect():
+    """Treated listings are rounded per type (3 and 5 listings at 50%: 2/3 and 3/5
+    treated). Mixing the types in one difference of means would report an effect of
+    a null treatment; applied per type and summed (stratified, as the stratified
+    randomization calls for), every estimator's large-market value under a null
+    treatment is exactly 0."""
+    market = ms.Market(listing_counts=[3, 5], mean_busy_time=[1.0, 3.0], arrival_rate=2.0,
+                       customer_shares=[1.0], consideration=[[0.9, 0.4]],
+                       utility=[[0.5, -0.5]], outside_utility=[0.0])
+    null = ms.Treatment()
+    for design in (ms.ListingSide(0.5), ms.TwoSided(0.5, 0.5)):
+        split = design.split(market)
+        assert [split.stratum(j).listing_fraction for j in (0, 1)] == [2 / 3, 3 / 5]
+        ledger = ms.meanfield.steady_state(market, null, design).ledger()
+        for estimator in fitting_estimators(split, market):
+            value = estimator.estimate(ledger).value
+            assert abs(value) < 1e-9 * ledger.booking_rate, (design, estimator, value)
+    # the unstratified formula on the same ledger is visibly off
+    ledger = ms.meanfield.steady_state(market, null, ms.ListingSide(0.5)).ledger()
+    whole = ms.ListingSideEstimator().weights(ms.ListingSide(0.5).split(market), market)
+    rates, _ = group_rates(ledger)
+    assert abs(float(np.sum(whole * rates))) > 0.01 * ledger.booking_rate
+
+
+def test_corrected_estimator_uses_the_naive_one_on_a_fully_treated_type():
+    """A type whose listings are all treated (1 listing at 50% rounds up) has no
+    control listings, so neither correction contrast exists there: the corrected
+    estimator uses the naive coefficients on that type and its own elsewhere."""
+    market = ms.Market(listing_counts=[1, 4], mean_busy_time=[1.0, 1.0], arrival_rate=1.0,
+                       customer_shares=[1.0], consideration=0.5, utility=0.0,
+                       outside_utility=0.0)
+    split = ms.TwoSided(0.5, 0.5).split(market)
+    corrected = ms.TwoSidedCorrected(k=2).stratum_weights(split, market)
+    naive = ms.TwoSidedNaive().stratum_weights(split, market)
+    np.testing.assert_array_equal(corrected[0], naive[0])
+    np.testing.assert_array_equal(corrected[1],
+                                  ms.TwoSidedCorrected(k=2).weights(split.stratum(1), market))
+    assert not np.array_equal(corrected[1], naive[1])

@@ -483,3 +483,141 @@ def test_simulate_requires_horizon():
 def test_design_fraction_errors(make, message):
     with raises(message):
         make()
+
+
+# ------------------------------------------ non-numbers, sizes and rounding (review)
+@pytest.mark.parametrize(
+    ("fields", "message"),
+    [
+        (dict(customer_shares=["0.4", "0.6"]),
+         "customer_shares must be an array of numbers of shape (n_customer_types,), "
+         "got ['0.4', '0.6']"),
+        (dict(customer_shares=[True, False]),
+         "customer_shares must be an array of numbers of shape (n_customer_types,), "
+         "got [True, False]"),
+        (dict(customer_shares=[[1.0], [0.5, 0.5]]),
+         "customer_shares must be an array of numbers of shape (n_customer_types,), "
+         "got [[1.0], [0.5, 0.5]]"),
+        (dict(customer_shares=None),
+         "customer_shares must be an array of numbers of shape (n_customer_types,), "
+         "got None"),
+        (dict(consideration=True),
+         f"consideration must be an array of numbers of shape {PAIR}, got True"),
+        (dict(utility=[[0.0, None], [0.0, 0.0]]),
+         f"utility must be an array of numbers of shape {PAIR}, got [[0.0, None], [0.0, 0.0]]"),
+        (dict(mean_busy_time=np.array(["1", "2"])),
+         "mean_busy_time must be an array of numbers of shape (n_listing_types,) = (2,), "
+         "got ['1', '2']"),
+        (dict(outside_utility=np.array([1j, 0])),
+         "outside_utility must be an array of numbers of shape (n_customer_types,) = (2,)"),
+        (dict(listing_types=3), "listing_types must be a list of 2 names, got 3"),
+    ],
+)
+def test_arrays_refuse_strings_bools_none_and_ragged_lists(fields, message):
+    # numpy would quietly read "0.4" as 0.4, True as 1.0 and None as nan
+    with raises(message):
+        market(**fields)
+
+
+@pytest.mark.parametrize(
+    ("counts", "message"),
+    [
+        ([1e20, 2], "listing_counts must contain whole numbers <= 2**53 = 9007199254740992, "
+                    "got 100000000000000000000 at index 0"),
+        ([2**53, 2], "listing_counts must add up to at most 2**53 = 9007199254740992, got "
+                     "9007199254740994"),
+    ],
+)
+def test_listing_counts_too_large_for_exact_counting(counts, message):
+    with raises(message):  # was an OverflowError
+        market(listing_counts=counts)
+
+
+def test_scaled_beyond_exact_counting_names_the_factor():
+    with raises("factor must keep the market at most 9007199254740992 listings, got 1e+30"):
+        market().scaled(1e30)  # was a garbage count from an invalid cast
+
+
+def test_mean_busy_time_too_small_for_a_finite_release_rate():
+    with raises("mean_busy_time must be large enough that listing_counts / mean_busy_time "
+                "is finite, got 1e-310 at index 0"):
+        market(mean_busy_time=[1e-310, 1.0])  # was an inf rate and raw scipy errors later
+
+
+def test_zero_dimensional_arrays_count_as_numbers():
+    assert market(arrival_rate=np.array(2.0)).arrival_rate == 2.0
+    assert ms.Treatment(utility_shift=np.array(0.2)).utility_shift == 0.2
+    design = ms.CustomerSide(np.array(0.5))
+    assert design == ms.CustomerSide(0.5) and type(design.treated) is float
+    hash(design)  # a stored 0-d array would make the design unhashable
+    assert repr(ms.TwoSided(np.float64(0.5), np.float32(0.25))) == \
+        "TwoSided(customers=0.5, listings=0.25)"
+
+
+@pytest.mark.parametrize(
+    ("treatment", "message"),
+    [
+        (ms.Treatment(utility_shift=1e308),
+         "utility_shift plus the market's utility must be finite, got 1e+308 at index (0, 0)"),
+        (ms.Treatment(outside_utility_shift=[0.0, -1e308]),
+         "outside_utility_shift plus the market's outside_utility must be finite, got "
+         "-1e+308 at index 1"),
+    ],
+    ids=["utility", "outside"],
+)
+def test_treatment_refuses_overflowing_utilities(treatment, message):
+    big = market(utility=[[1e308, 0.0], [0.0, 0.0]], outside_utility=[0.0, -1e308])
+    with raises(message):  # overflow gave NaN weights: nobody booked, NaN availability
+        ms.simulate(big, treatment, ms.GlobalTreatment(), horizon=1.0, seed=0)
+
+
+def test_treatment_string_rejected_at_construction():
+    with raises("utility_shift must be a number or an array of numbers, got ['0.2']"):
+        ms.Treatment(utility_shift=["0.2"])
+
+
+@pytest.mark.parametrize(
+    ("start", "message"),
+    [
+        (["1", "2"], "start must contain whole numbers, got ['1', '2']"),
+        ([True, True], "start must contain whole numbers, got [True, True]"),
+        ([1j, 1], "start must contain whole numbers, got [1j, (1+0j)]"),
+    ],
+)
+def test_simulate_start_refuses_non_numbers(start, message):
+    with raises(message):
+        ms.simulate(market(), horizon=1.0, seed=0, start=start)
+
+
+def test_simulate_window_lost_to_rounding_is_refused():
+    # burn_in + horizon == burn_in in floating point: the run recorded nothing and
+    # reported mean availability 0 for a market whose listings were all available
+    with raises("horizon must be at least 1e-09 times burn_in and burn_in + horizon must be "
+                "finite (else the window is lost to rounding), got horizon=1e-12 with "
+                "burn_in=1000000.0"):
+        ms.simulate(market(), horizon=1e-12, burn_in=1e6, seed=0)
+    tiny = ms.simulate(market(), horizon=1e-300, seed=0)  # no burn-in: nothing is lost
+    assert tiny.mean_available.tolist() == [3.0, 2.0]
+
+
+def test_simulate_edge_markets_stay_finite():
+    """One listing, no consideration, utilities +-50, 10 million listings: all finite."""
+    one = market(listing_counts=[1], mean_busy_time=[1.0], customer_shares=[1.0],
+                 consideration=0.5, utility=0.0, outside_utility=-1.0)
+    huge = market(listing_counts=[6_000_000, 4_000_000]).with_balance(1.0)
+    cases = [
+        (one, ms.TwoSided(0.5, 0.5), 10.0),
+        (market(consideration=0.0), ms.CustomerSide(0.5), 10.0),
+        (market(utility=50.0, outside_utility=-50.0), ms.ListingSide(0.5), 10.0),
+        (market(utility=-50.0, outside_utility=50.0), ms.ListingSide(0.5), 10.0),
+        (market(utility=[[50.0, -50.0], [-50.0, 50.0]], outside_utility=[50.0, -50.0]),
+         ms.TwoSidedFollowingBalance(), 10.0),
+        (huge, ms.CustomerSide(0.5), 1e-3),
+    ]
+    for m, design, horizon in cases:
+        ledger = ms.simulate(m, ms.Treatment(utility_shift=0.5), design, horizon=horizon,
+                             seed=1, bins=2)
+        assert np.all(np.isfinite(ledger.mean_available))
+        assert np.all(ledger.bookings.sum(axis=1) <= ledger.arrivals)
+        assert np.all((ledger.final_available >= 0)
+                      & (ledger.final_available <= ledger.cells.listing_count))

@@ -8,6 +8,7 @@ decimals of a seeded run.
 from __future__ import annotations
 
 import math
+import re
 import warnings
 
 import numpy as np
@@ -310,13 +311,15 @@ def test_corrected_two_sided_versus_naive_at_intermediate_balance():
     designs (60 points). Formulas untouched; the assertions record what was found:
 
     - the naive two-sided estimator overestimates the effect at every point
-      (relative bias +10% to +259%);
-    - the k = 1 correction reduces |bias| at every point, but leaves most of it;
-    - k = 2 reduces |bias| at 59 of 60 points; at the exception (three types,
-      fractions following balance, balance 3) the naive bias is already +10% and
-      k = 2 overshoots to -10.5%;
-    - with fixed fractions (0.5, 0.5) no estimator gets below 15% relative bias;
-    - k = 2 beats k = 1 at 58 of 60 points; where it does not, it overshoots below 0.
+      (relative bias +16% to +259%);
+    - the k = 1 correction reduces |bias| at every point, but leaves most of it
+      (up to about 80% of the naive bias);
+    - k = 2 reduces |bias| further at every point, yet stays above 0 everywhere
+      (+5% to +70%): it shrinks the bias, it does not remove it;
+    - with fixed fractions (0.5, 0.5) no estimator gets below 15% relative bias.
+    (Estimators are stratified by listing type; before they were, rounding gave the
+    three-type market's types unequal treated shares and k = 2 overshot to -10% at
+    one point.)
     """
     markets = {"rehearsal rooms": ms.scenarios.rehearsal_rooms(),
                "one type": one_type_market(), "three types": three_type_market()}
@@ -340,13 +343,10 @@ def test_corrected_two_sided_versus_naive_at_intermediate_balance():
     assert (naive > 0).all()
     assert (k1.abs() < naive.abs()).all()
     assert (k1 / naive).max() > 0.6  # k = 1 leaves over 60% of the naive bias somewhere
-    worse = k2.abs() >= naive.abs()
-    assert worse.sum() == 1 and (k2[worse] < 0).all() and (naive[worse] < 0.11).all()
+    assert (k2.abs() < k1.abs()).all()
+    assert (k2 > 0.04).all()
     fixed = table.xs("fixed (0.5, 0.5)", level="design")
     assert fixed.abs().min().min() > 0.15
-    better = k2.abs() < k1.abs()
-    assert better.sum() == 58
-    assert (k2[~better] < 0).all()
 
 
 # --------------------------------------------------------------------------- against simulation
@@ -426,3 +426,44 @@ def test_agrees_with_a_study_of_a_large_finite_market():
     assert (np.abs(joined["mean_estimate"] - joined["expected_estimate"]) < 4 * se).all()
     truth_gap = np.abs(joined["truth"] - joined["truth_limit"])
     assert (truth_gap < 4 * joined["truth_mc_se"]).all()
+
+
+# ------------------------------------------------------------- input edge cases (review)
+def test_trajectory_accepts_repeated_times_as_documented():
+    # "non-decreasing" times: solve_ivp refused repeats with a raw scipy message
+    market = ms.scenarios.rehearsal_rooms()
+    path = mf.trajectory(market, t=[0.0, 1.0, 1.0, 2.0])
+    plain = mf.trajectory(market, t=[0.0, 1.0, 2.0])
+    assert path.available.shape == (4, 2)
+    np.testing.assert_allclose(path.available[[0, 1, 3]], plain.available, rtol=1e-8)
+    np.testing.assert_array_equal(path.available[1], path.available[2])
+
+
+@pytest.mark.parametrize(
+    ("call", "message"),
+    [
+        (lambda m: mf.trajectory(m, t=["1", "2"]), "t must be an array of times >= 0, got "
+                                                   "['1', '2']"),
+        (lambda m: mf.trajectory(m, t=None), "t must be an array of times >= 0, got None"),
+        (lambda m: mf.trajectory(m, t=[0.0, 1.0], start=["1.5", "2.5"]),
+         "start must contain available listings, got ['1.5', '2.5']"),
+        (lambda m: mf.steady_state(m, method=np.array(["auto", "ode"])),
+         "method must be one of 'auto', 'newton', 'ode', got ['auto', 'ode']"),
+        (lambda m: mf.sweep_balance(m, ms.Treatment(utility_shift=0.1), None, [1.0]),
+         "designs must be a marketsim.Design, a callable balance -> Design, or a list or "
+         "dict of them, got NoneType"),
+        (lambda m: mf.expected_estimates(m, ms.Treatment(utility_shift=0.1),
+                                         ms.ListingSide(0.01)),
+         "design 'listing-side (a_L=0.01)' has no estimator that fits it in this market "
+         "(listing-side needs a design that treats some but not all listings (0 < a_L < 1), "
+         "got a_L = 0 (the design treats none of the listings)); pass estimators=[...] or "
+         "use another design"),
+    ],
+    ids=["t-strings", "t-none", "start-strings", "method-array", "designs-none",
+         "no-estimator-fits"],
+)
+def test_more_errors_are_clear(call, message):
+    # before: times read from strings, None as nan, numpy's "truth value is ambiguous",
+    # a TypeError, and an empty table for a design no estimator fits
+    with pytest.raises(ValueError, match=re.escape(message)):
+        call(ms.scenarios.rehearsal_rooms())

@@ -1,6 +1,7 @@
 """The command line: demo, scenario files, template (small settings)."""
 
 import json
+import re
 
 import pytest
 
@@ -61,3 +62,75 @@ def test_report_command_rejects_a_missing_file(capsys, tmp_path):
     with pytest.raises(SystemExit):
         main(["report", str(tmp_path / "nothing.json")])
     assert "does not exist" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("change, message", [
+    (lambda d: d.pop("treatment"), "scenario must have the key 'treatment'"),
+    (lambda d: d.update(treatment={}),
+     "treatment must change bookings in the market, got a large-market effect of exactly 0 "
+     "for Treatment()"),
+    (lambda d: d["market"].update(consideration=0.0),
+     "treatment must change bookings in the market, got a large-market effect of exactly 0"),
+    (lambda d: d["treatment"].update(utility_shift=[0.1, 0.2, 0.3]),
+     "treatment.utility_shift must have shape (n_customer_types, n_listing_types) = (2, 2), "
+     "got shape (3,)"),
+    (lambda d: d["treatment"].update(consideration_factor=100.0),
+     "treatment.consideration_factor times the market's consideration must be <= 1"),
+    (lambda d: d["market"].update(customer_shares=["0.5", "0.5"]),
+     "market.customer_shares must be an array of numbers of shape (n_customer_types,), got "
+     "['0.5', '0.5']"),
+    (lambda d: d["market"].update(listing_types=3),
+     "market.listing_types must be a list of 2 names, got 3"),
+    (lambda d: d["experiment"].update(horizon=1e-300),
+     "experiment.horizon must be at least 1e-09 times burn_in"),
+], ids=["no-treatment", "null-treatment", "nobody-books", "shift-shape", "factor",
+        "string-shares", "names-int", "window"])
+def test_scenarios_the_report_could_not_run_are_refused_on_loading(change, message):
+    # before: accepted, then a KeyError, a matplotlib error or a ValueError traceback
+    # deep in the report (or a TypeError while loading)
+    data = rehearsal_rooms_scenario().to_dict()
+    change(data)
+    with pytest.raises(ValueError, match=re.escape(message)):
+        scenario_from_dict(data)
+
+
+def test_unreadable_scenario_files_are_usage_errors(capsys, tmp_path):
+    with pytest.raises(SystemExit):
+        main(["report", str(tmp_path)])  # a folder: was an IsADirectoryError traceback
+    assert f"scenario file {str(tmp_path)!r} cannot be read" in capsys.readouterr().err
+    binary = tmp_path / "market.json"
+    binary.write_bytes(b"\xff\xfe{")
+    with pytest.raises(SystemExit):
+        main(["report", str(binary)])
+    assert "is not UTF-8 text" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("options, message", [
+    (["--seed", "-1"], "--seed must be a whole number >= 0, got -1"),
+    (["--out", "FILE"], "--out must be a folder that can be created, got"),
+])
+def test_bad_options_are_usage_errors_before_any_work(options, message, capsys, tmp_path):
+    # before: a traceback from deep inside the study / from mkdir
+    existing = tmp_path / "a file"
+    existing.write_text("x")
+    options = [str(existing) if o == "FILE" else o for o in options]
+    with pytest.raises(SystemExit):
+        main(["demo", "--replications", "2", *options])
+    err = capsys.readouterr().err
+    assert message in err and "usage: marketsim demo" in err
+
+
+def test_report_that_cannot_run_its_designs_is_a_usage_error(capsys, tmp_path):
+    # every type has one listing: listing-side randomization treats all of them
+    data = rehearsal_rooms_scenario().to_dict()
+    data["market"].update(listing_types=["room"], listing_counts=[1], mean_busy_time=[2.0],
+                          consideration=[[0.5], [0.5]], utility=[[0.0], [0.0]], price=[10.0],
+                          arrival_rate=1.0)
+    data["experiment"].update(horizon=5.0, burn_in=0.0)
+    path = tmp_path / "one.json"
+    path.write_text(json.dumps(data))
+    with pytest.raises(SystemExit):
+        main(["report", str(path), "--replications", "2", "--workers", "1",
+              "--out", str(tmp_path / "out")])
+    assert "listing-side needs a design that treats some but not all listings" in \
+        capsys.readouterr().err

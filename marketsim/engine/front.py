@@ -44,7 +44,8 @@ def simulate(
     design : Design, optional
         Who is treated (default :class:`~marketsim.GlobalControl`).
     horizon : float
-        Length of the measurement window, > 0.
+        Length of the measurement window, > 0 (and at least ``1e-9 * burn_in``,
+        so that rounding cannot swallow the window).
     burn_in : float
         Time simulated before the window starts and not recorded, >= 0.
     seed : int, SeedSequence, Generator or None
@@ -92,8 +93,7 @@ def run_cells(
     bins: int | None = None,
 ) -> Ledger:
     """Like :func:`simulate` for cells that are already built (used by studies)."""
-    horizon = check.number("horizon", horizon, low=0.0, low_open=True)
-    burn_in = check.number("burn_in", burn_in, low=0.0)
+    horizon, burn_in = check.window(horizon, burn_in)
     n_bins = 0 if bins is None else check.whole_number("bins", bins, low=1)
     available = starting_availability(cells, start)
     rng_arrivals, rng_choices, rng_releases = engine_streams(seed)
