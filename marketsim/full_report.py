@@ -184,11 +184,10 @@ def plan_section(report: Report, scenario: Scenario, replications: int,
     plan = plan_horizon(market, treatment, Arm(arm.design, [estimator], name=arm.label),
                         pilot_horizon=scenario.horizon / 4, burn_in=scenario.burn_in,
                         minimum_effect=scenario.minimum_effect, replications=replications,
-                        seed=plan_seed, workers=workers, progress=True)
+                        seed=plan_seed, workers=workers, progress=True, time_unit=unit)
     report.text(f"How long must **{arm.label}** with the {estimator.name} estimator run to "
                 f"detect {scenario.minimum_effect:g} more bookings per {unit} (80% power, "
-                "5% level)? (Horizons are in "
-                f"{unit}s.)")
+                "5% level)?")
     report.text(plan.report().replace("\n", "\n\n"))
     print(choice.report())
     print(plan.report())

@@ -335,11 +335,14 @@ class HorizonPlan:
         bias larger than the noise, scaling that does not hold).
     target : str
         The target in words.
+    time_unit : str
+        Name of the market's time unit, for the report (``"hour"``, ...).
     """
 
     table: pd.DataFrame
     notes: tuple[str, ...]
     target: str
+    time_unit: str = "time unit"
 
     def to_frame(self) -> pd.DataFrame:
         """The plan table (a copy)."""
@@ -351,7 +354,7 @@ class HorizonPlan:
         for row in self.table.itertuples(index=False):
             if row.reachable:
                 lines.append(
-                    f"- {row.estimator}: run {row.recommended_horizon:.4g} time units "
+                    f"- {row.estimator}: run {row.recommended_horizon:.4g} {self.time_unit}s "
                     f"(about {row.expected_arrivals:.0f} arrivals); bias floor "
                     f"{row.bias:+.3g} (Monte Carlo s.e. {row.bias_mc_se:.2g}); at the true effect "
                     f"({row.truth:.3g}) power "
@@ -389,6 +392,7 @@ def plan_horizon(
     seed: SeedLike = None,
     workers: int = 1,
     progress: bool = True,
+    time_unit: str = "time unit",
 ) -> HorizonPlan:
     """Recommend the horizon at which an arm's estimators reach a target.
 
@@ -424,6 +428,8 @@ def plan_horizon(
         The second pilot horizon is ``check_factor * pilot_horizon``, > 1.
     seed, workers, progress
         As for :meth:`Study.run`.
+    time_unit : str
+        Name of the market's time unit, used in the plan's report.
 
     Returns
     -------
@@ -530,7 +536,8 @@ def plan_horizon(
         "horizon carries the pilots' Monte Carlo error (about "
         f"{100 * 2 * math.sqrt(1 / (2 * (replications - 1))):.0f}% here)."
     )
-    return HorizonPlan(table=pd.DataFrame(rows), notes=tuple(notes), target=target_text)
+    return HorizonPlan(table=pd.DataFrame(rows), notes=tuple(notes), target=target_text,
+                       time_unit=time_unit)
 
 
 def _sd_error(sd: float, n: int) -> float:
