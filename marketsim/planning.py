@@ -530,6 +530,12 @@ def plan_horizon(
                 f"{name}: target RMSE {goal:.3g} is unreachable: the bias floor is "
                 f"{bias:+.3g} (Monte Carlo s.e. {bias_se:.2g}) whatever the horizon."
             )
+            if abs(bias) - 2.0 * bias_se < goal:
+                notes.append(
+                    f"{name}: the bias is within two Monte Carlo standard errors of the "
+                    "target, so the pilots cannot tell whether the target is reachable; "
+                    "run them with more replications."
+                )
     notes.append(
         "The plan comes from a model of the market (Poisson arrivals, logit choice, "
         "exponential busy times, stationarity) and from Monte Carlo pilots; the recommended "

@@ -621,3 +621,8 @@ def test_simulate_edge_markets_stay_finite():
         assert np.all(ledger.bookings.sum(axis=1) <= ledger.arrivals)
         assert np.all((ledger.final_available >= 0)
                       & (ledger.final_available <= ledger.cells.listing_count))
+
+
+def test_simulate_refuses_bins_that_would_not_fit_in_memory():
+    with raises("bins must be at most"):
+        ms.simulate(market(), horizon=1.0, seed=0, bins=10**13)

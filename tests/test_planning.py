@@ -266,3 +266,21 @@ def test_runner_up_note_uses_the_paired_monte_carlo_error():
     assert (choice.result.replications["replication_truth"] == 0.0).all()
     assert table["rmse"].iloc[1] == pytest.approx(1.1 * table["rmse"].iloc[0], rel=1e-9)
     assert not any("runner-up" in note for note in choice.notes), choice.notes
+
+
+def test_unreachable_target_within_monte_carlo_error_says_so():
+    """When the bias exceeds the target RMSE by less than two Monte Carlo standard
+    errors, the plan says the pilots cannot tell (same seed, same pilots)."""
+    market = ms.scenarios.rehearsal_rooms(balance=4.0)
+    arguments = {"pilot_horizon": 10.0, "burn_in": 5.0, "replications": 20, "seed": 4,
+                 "progress": False}
+    first = plan_horizon(market, ms.scenarios.instant_confirmation(), ms.CustomerSide(0.5),
+                         target_se=1.0, **arguments).table.iloc[0]
+    near = abs(first["bias"]) - 0.5 * first["bias_mc_se"]
+    plan = plan_horizon(market, ms.scenarios.instant_confirmation(), ms.CustomerSide(0.5),
+                        target_rmse=near, **arguments)
+    assert not plan.table["reachable"].iloc[0]
+    assert any("cannot tell" in note for note in plan.notes)
+    clear = plan_horizon(market, ms.scenarios.instant_confirmation(), ms.CustomerSide(0.5),
+                         target_rmse=abs(first["bias"]) - 3 * first["bias_mc_se"], **arguments)
+    assert not any("cannot tell" in note for note in clear.notes)

@@ -17,6 +17,8 @@ from marketsim.randomness import SeedLike, engine_streams
 
 StartLike = Union[str, ArrayLike]
 START_OPTIONS = ("empty", "steady")
+MAX_BIN_BYTES = 2**30
+"""Largest memory the per-bin counts of one run may take."""
 
 
 def simulate(
@@ -95,9 +97,16 @@ def run_cells(
     """Like :func:`simulate` for cells that are already built (used by studies)."""
     horizon, burn_in = check.window(horizon, burn_in)
     n_bins = 0 if bins is None else check.whole_number("bins", bins, low=1)
+    n_customer, n_listing = cells.n_customer_cells, cells.n_listing_cells
+    most_bins = MAX_BIN_BYTES // (8 * n_customer * (n_listing + 1))
+    if n_bins > most_bins:
+        raise ValueError(
+            f"bins must be at most {most_bins:,} for this design ({n_customer} x {n_listing} "
+            f"cells; the counts per bin would need more than {MAX_BIN_BYTES // 2**30} GiB), "
+            f"got {n_bins:,}"
+        )
     available = starting_availability(cells, start)
     rng_arrivals, rng_choices, rng_releases = engine_streams(seed)
-    n_customer, n_listing = cells.n_customer_cells, cells.n_listing_cells
     bookings = np.zeros((n_customer, n_listing), dtype=np.int64)
     arrivals = np.zeros(n_customer, dtype=np.int64)
     available_time = np.zeros(n_listing)
