@@ -56,12 +56,12 @@ from numpy.typing import ArrayLike
 from marketsim import _validation as check
 from marketsim.cells import MarketCells, build_cells
 from marketsim.designs import Design, GlobalControl, GlobalTreatment
+from marketsim.engine.front import START_OPTIONS
 from marketsim.estimators import METRICS, Estimator, default_estimators, metric_rate
 from marketsim.ledger import Ledger
 from marketsim.market import Market, Treatment
 
 METHODS = ("auto", "newton", "ode")
-START_OPTIONS = ("empty", "steady")
 NEWTON_TOLERANCE = 1e-12
 """Newton stops when every relative residual ``|1 - D_c / G_c(D)|`` is below this."""
 NEWTON_MAX_ITERATIONS = 100

@@ -56,9 +56,10 @@ from marketsim.estimators import (
     metric_rate,
 )
 from marketsim.market import Market, Treatment
+from marketsim.power import critical_value
 from marketsim.randomness import SeedLike, seed_sequence
 
-Z_95 = 1.959963984540054
+Z_95 = critical_value(0.05)
 """Two-sided 95% quantile of the standard normal, ``scipy.stats.norm.ppf(0.975)``."""
 
 CAVEAT = (
