@@ -34,9 +34,9 @@ import numpy as np
 import scipy
 
 import marketsim as ms
-from marketsim.cells import build_cells
+from marketsim.engine.cells import build_cells
 from marketsim.estimators import all_estimators
-from marketsim.meanfield import _solve
+from marketsim.meanfield.steady import solve_cells
 
 
 def ten_by_ten() -> ms.Market:
@@ -80,7 +80,7 @@ def main() -> None:
         state = ms.meanfield.steady_state(market, treatment, design)
         whole = median_time(lambda d=design: ms.meanfield.steady_state(market, treatment, d),
                             args.repeats)
-        solver = median_time(lambda c=cells: _solve(c), args.repeats)
+        solver = median_time(lambda c=cells: solve_cells(c), args.repeats)
         print(f"  {design.label:32s} {cells.n_customer_cells:2d} x {cells.n_listing_cells:2d}"
               f" cells: {whole * 1e3:6.2f} ms per call ({solver * 1e3:5.2f} ms in the solver, "
               f"{state.iterations} Newton iterations)")

@@ -10,7 +10,7 @@ from pathlib import Path
 import numpy as np
 
 import marketsim as ms
-from marketsim.plotting.sweep import plot_balance_sweep
+from marketsim.meanfield.figures import plot_balance_sweep
 
 market = ms.scenarios.rehearsal_rooms().scaled(25)  # 1,000 listings
 table = ms.meanfield.sweep_balance(

@@ -3,10 +3,14 @@
 Simulate a two-sided market of customers and listings exactly, run experiment
 designs on it and score their estimators against the true global treatment
 effect. See the README for a tour.
+
+The package is laid out as stages of one flow, each a subpackage that imports only
+the stages before it (``tests/test_layering.py`` checks this):
+model -> designs -> engine -> estimators -> meanfield -> calibration -> study ->
+planning -> report -> cli.
 """
 
-from marketsim import meanfield, scenarios
-from marketsim.cells import MarketCells, build_cells
+from marketsim import meanfield
 from marketsim.designs import (
     CellSplit,
     CustomerSide,
@@ -17,7 +21,7 @@ from marketsim.designs import (
     TwoSided,
     TwoSidedFollowingBalance,
 )
-from marketsim.engine import simulate
+from marketsim.engine import Ledger, MarketCells, build_cells
 from marketsim.estimators import (
     CustomerSideEstimator,
     Estimate,
@@ -26,8 +30,7 @@ from marketsim.estimators import (
     TwoSidedCorrected,
     TwoSidedNaive,
 )
-from marketsim.ledger import Ledger
-from marketsim.market import Market, Treatment
+from marketsim.model import Market, Treatment, scenarios
 from marketsim.planning import (
     DesignChoice,
     HorizonPlan,
@@ -36,7 +39,7 @@ from marketsim.planning import (
     power_table,
     sweep,
 )
-from marketsim.study import Arm, Study, StudyResult
+from marketsim.study import Arm, Study, StudyResult, simulate
 
 __version__ = "0.1.0"
 

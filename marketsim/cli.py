@@ -3,7 +3,7 @@
 ``marketsim demo``
     The whole job on the built-in (invented) rehearsal-room scenario.
 ``marketsim report FILE``
-    The same on a scenario file (see :mod:`marketsim.scenario_file`).
+    The same on a scenario file (see :mod:`marketsim.model.scenario_file`).
 ``marketsim scenario-template``
     Print the built-in scenario as a scenario file to start from.
 """
@@ -15,9 +15,9 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from marketsim.full_report import write_full_report
-from marketsim.scenario_file import load_scenario
-from marketsim.scenarios import rehearsal_rooms_scenario
+from marketsim.model.scenario_file import load_scenario
+from marketsim.model.scenarios import rehearsal_rooms_scenario
+from marketsim.report.full_report import write_full_report
 
 REPLICATIONS = 200
 SEED = 2026

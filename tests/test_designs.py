@@ -10,6 +10,7 @@ import numpy as np
 import pytest
 
 import marketsim as ms
+from marketsim.estimators import design_estimators
 
 
 def three_type_market() -> ms.Market:
@@ -180,7 +181,7 @@ def test_two_sided_following_balance_is_for_balance_at_each_market():
         assert ours.customer_share.tolist() == fixed.customer_share.tolist()
         assert ours.listing_count.tolist() == fixed.listing_count.tolist()
     assert design.label == "two-sided (follows balance)"
-    assert [e.name for e in design.default_estimators()] == [
+    assert [e.name for e in design_estimators(design)] == [
         "two-sided naive", "two-sided corrected (k=1)", "two-sided corrected (k=2)"]
     with pytest.raises(ValueError, match=r"listings must be a finite number in \(0, 1\)"):
         ms.TwoSidedFollowingBalance(listings=1.0)

@@ -18,9 +18,10 @@ from scipy.integrate import solve_ivp
 
 import marketsim as ms
 from marketsim import meanfield as mf
-from marketsim.engine.front import starting_availability
 from marketsim.estimators import TwoSidedCorrected, TwoSidedNaive, metric_rate
+from marketsim.meanfield import solver
 from marketsim.randomness import spawn
+from marketsim.study.single_run import starting_availability
 
 
 # --------------------------------------------------------------------------- markets
@@ -118,11 +119,11 @@ def test_steady_state_obeys_littles_law_and_flow_balance():
                                rtol=1e-10)
     assert np.all(state.booking_rates.sum(axis=1) < state.arrival_rates)
     assert state.booking_rate == pytest.approx(state.booking_rates.sum())
-    assert state.method == "newton" and state.residual <= mf.NEWTON_TOLERANCE
+    assert state.method == "newton" and state.residual <= solver.NEWTON_TOLERANCE
     # the damped Newton (second line of defence) and the ODE fallback agree
-    model = mf._Model.of(cells)
-    lo, hi = mf._bounds(model)
-    x, _ = mf._newton(model, mf._start_guess(model, lo, hi), lo, hi, damped=True)
+    model = solver.FlowModel.of(cells)
+    lo, hi = solver.bounds(model)
+    x, _ = solver.newton(model, solver.start_guess(model, lo, hi), lo, hi, damped=True)
     np.testing.assert_allclose(model.availability(x)[0] * model.n, state.available, rtol=1e-9)
     by_ode = mf.steady_state(market, ms.Treatment(utility_shift=0.4), ms.TwoSided(0.4, 0.6),
                              method="ode")
@@ -262,7 +263,7 @@ def test_sweep_accepts_callables_dicts_and_matches_single_points():
 def test_plot_of_the_sweep():
     from matplotlib.figure import Figure
 
-    from marketsim.plotting.sweep import plot_balance_sweep
+    from marketsim.meanfield.figures import plot_balance_sweep
 
     table = mf.sweep_balance(ms.scenarios.rehearsal_rooms(), ms.scenarios.instant_confirmation(),
                              [ms.CustomerSide(0.5), ms.ListingSide(0.5), ms.TwoSided(0.5, 0.5),

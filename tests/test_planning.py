@@ -165,7 +165,7 @@ def test_sweep_bad_input(kwargs, message):
 
 def test_sweep_plot_panels():
     """Large-market sweeps have no noise: bias and relative bias only."""
-    from marketsim.plotting.planning import plot_sweep
+    from marketsim.planning.figures import plot_sweep
 
     table = sweep(ms.scenarios.rehearsal_rooms(), ms.scenarios.instant_confirmation(),
                   [ms.CustomerSide(0.5)], values=[0.1, 1.0, 10.0])
@@ -226,10 +226,10 @@ def test_sweep_of_a_design_that_follows_balance_with_chosen_estimators():
 def test_ctrl_c_during_a_simulation_sweep_keeps_the_points_finished(monkeypatch):
     """Ctrl-C stops the whole sweep (not just the current point) and returns what
     finished, with a warning."""
-    import marketsim.study as study_module
+    import marketsim.study.study as study_module
 
     calls = {"n": 0}
-    real = study_module._replicate
+    real = study_module.replicate
 
     def interrupted_in_second_point(*args):
         if calls["n"] == 7:  # 4 replications of the first point, 3 of the second
@@ -237,7 +237,7 @@ def test_ctrl_c_during_a_simulation_sweep_keeps_the_points_finished(monkeypatch)
         calls["n"] += 1
         return real(*args)
 
-    monkeypatch.setattr(study_module, "_replicate", interrupted_in_second_point)
+    monkeypatch.setattr(study_module, "replicate", interrupted_in_second_point)
     with pytest.warns(RuntimeWarning, match="sweep interrupted: returning 2 of 3 points"):
         table = sweep(ms.scenarios.rehearsal_rooms(), ms.scenarios.instant_confirmation(),
                       [ms.CustomerSide(0.5)], values=[0.5, 1.0, 2.0], mode="simulation",

@@ -16,8 +16,8 @@ import pandas as pd
 import pytest
 
 import marketsim as ms
-import marketsim.study as study_module
-from marketsim.study import SUMMARY_COLUMNS
+import marketsim.study.study as study_module
+from marketsim.study import SUMMARY_COLUMNS, replication, result
 
 
 def one_type_market(listings: int, balance: float, outside_utility: float) -> ms.Market:
@@ -226,7 +226,7 @@ def test_generator_and_seed_sequence_seeds():
 # ------------------------------------------------------------------ interruption
 def test_ctrl_c_returns_the_finished_replications_with_a_warning(monkeypatch):
     calls = {"n": 0}
-    real = study_module._replicate
+    real = study_module.replicate
 
     def interrupted_after_three(*args):
         if calls["n"] == 3:
@@ -234,14 +234,14 @@ def test_ctrl_c_returns_the_finished_replications_with_a_warning(monkeypatch):
         calls["n"] += 1
         return real(*args)
 
-    monkeypatch.setattr(study_module, "_replicate", interrupted_after_three)
+    monkeypatch.setattr(study_module, "replicate", interrupted_after_three)
     study = small_study(arms=[ms.CustomerSide(0.5)], metric=["bookings"])
     with pytest.warns(RuntimeWarning, match="study interrupted: 3 of 10 replications finished"):
         result = study.run(10, seed=1, progress=False)
     assert result.interrupted and result.completed == 3 and result.requested == 10
     assert (result.summary["replications"] == 3).all()
     assert "interrupted" in result.caveats
-    monkeypatch.setattr(study_module, "_replicate", real)
+    monkeypatch.setattr(study_module, "replicate", real)
     full = study.run(3, seed=1, progress=False)
     pd.testing.assert_frame_equal(result.summary, full.summary, check_exact=True)
 
@@ -250,7 +250,7 @@ def test_ctrl_c_before_two_replications_finish_goes_on(monkeypatch):
     def interrupted(*args):
         raise KeyboardInterrupt
 
-    monkeypatch.setattr(study_module, "_replicate", interrupted)
+    monkeypatch.setattr(study_module, "replicate", interrupted)
     study = small_study(arms=[ms.CustomerSide(0.5)], metric=["bookings"])
     with pytest.raises(KeyboardInterrupt):
         study.run(10, seed=1, progress=False)
@@ -271,7 +271,7 @@ def test_ctrl_c_with_workers_cancels_the_rest(monkeypatch):
         def close(self):
             pass
 
-    monkeypatch.setattr(study_module, "_progress_bar", Bar)
+    monkeypatch.setattr(study_module, "progress_bar", Bar)
     study = small_study(arms=[ms.CustomerSide(0.5)], metric=["bookings"])
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
@@ -442,7 +442,7 @@ def test_the_fast_path_gives_exactly_what_the_estimators_give(monkeypatch):
     study = small_study()
     fast = study.run(4, seed=9, progress=False)
     plan = study._plan
-    slow_plan = study_module._Plan(**{
+    slow_plan = replication.Plan(**{
         **{name: getattr(plan, name) for name in plan.__dataclass_fields__},
         "arm_weights": tuple((None,) * len(w) for w in plan.arm_weights),
     })
@@ -465,7 +465,7 @@ def test_monte_carlo_errors_match_the_spread_over_repeated_studies():
     truths = 1.0 + 0.3 * rng.standard_normal((studies, n))
     estimates = 2.0 + 0.3 * rng.standard_normal((studies, n))
     naive = np.full(n, 0.3)
-    scores = [study_module._score(e, naive, t) for e, t in zip(estimates, truths)]
+    scores = [result._score(e, naive, t) for e, t in zip(estimates, truths)]
     tolerance = 4.0 / math.sqrt(2.0 * (studies - 1))
     for figure in ("bias", "relative_bias", "rmse"):
         spread = np.std([s[figure] for s in scores], ddof=1)

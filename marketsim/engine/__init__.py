@@ -1,5 +1,11 @@
-"""Exact simulation of the finite market (numba kernel behind a checked front)."""
+"""Stage 3, engine: cells of a design, the exact simulation and the ledger it records.
 
-from marketsim.engine.front import run_cells, simulate
+May import: model, designs (and the shared helpers). The numba kernels are private;
+``run_cells`` is the checked front that validates once and calls them.
+"""
 
-__all__ = ["simulate", "run_cells"]
+from marketsim.engine.cells import START_OPTIONS, MarketCells, build_cells
+from marketsim.engine.ledger import Ledger
+from marketsim.engine.runner import run_cells
+
+__all__ = ["MarketCells", "build_cells", "Ledger", "run_cells", "START_OPTIONS"]

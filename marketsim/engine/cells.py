@@ -15,7 +15,10 @@ from numpy.typing import ArrayLike
 
 from marketsim import _validation as check
 from marketsim.designs import CellSplit, Design, GlobalControl
-from marketsim.market import NO_TREATMENT, Market, Treatment
+from marketsim.model import NO_TREATMENT, Market, Treatment
+
+START_OPTIONS = ("empty", "steady")
+"""Named starting states: every listing available, or the large-market steady state."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -121,6 +124,24 @@ class MarketCells:
             )
         return numeric
 
+
+    def starting_counts(self, start: str | ArrayLike) -> np.ndarray:
+        """Available listings per listing cell at time 0, as a fresh int64 array.
+
+        ``start`` is ``"empty"`` (every listing available) or whole counts per
+        listing cell. The warm start ``"steady"`` needs the large-market model,
+        which lives above the engine: :func:`marketsim.simulate` and
+        :class:`marketsim.Study` resolve it to counts before they get here.
+        """
+        if isinstance(start, str):
+            check.choice("start", start, START_OPTIONS)
+            if start == "steady":
+                raise ValueError(
+                    "start must be 'empty' or counts per listing cell at the engine level, "
+                    "got 'steady' (use marketsim.simulate, which resolves the warm start)"
+                )
+            return self.listing_count.astype(np.int64).copy()
+        return self.check_availability(start, whole=True).astype(np.int64)
 
 def build_cells(
     market: Market, treatment: Treatment | None = None, design: Design | None = None

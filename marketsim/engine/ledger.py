@@ -7,7 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from marketsim.cells import MarketCells
+from marketsim.engine.cells import MarketCells
 
 
 @dataclass(frozen=True, eq=False)

@@ -1,7 +1,7 @@
 """Numba kernel of the exact continuous-time Markov chain (private).
 
 Plain arrays in, preallocated arrays out; every check happens in
-:mod:`marketsim.engine.front` before the kernel is called.
+:mod:`marketsim.engine.runner` before the kernel is called.
 
 The choice step is exact and costs one uniform per listing cell whatever the
 number of listings. Multinomial-logit choice among the considered listings and

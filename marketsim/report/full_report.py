@@ -21,11 +21,11 @@ from marketsim.estimators import (
     TwoSidedCorrected,
     TwoSidedNaive,
 )
+from marketsim.meanfield.figures import plot_balance_sweep
+from marketsim.model.scenario_file import Scenario
 from marketsim.planning import choose_design, default_candidates, plan_horizon, power_table
-from marketsim.plotting.sweep import plot_balance_sweep
 from marketsim.randomness import SeedLike, spawn
-from marketsim.report import Report
-from marketsim.scenario_file import Scenario
+from marketsim.report.markdown import Report
 from marketsim.study import CAVEAT, Arm, Study, StudyResult, default_workers
 
 SWEEP_LISTINGS = 1000

@@ -2,8 +2,8 @@
 
 from __future__ import annotations
 
-from marketsim.market import Market, Treatment
-from marketsim.scenario_file import Scenario
+from marketsim.model import Market, Treatment
+from marketsim.model.scenario_file import Scenario
 
 
 def rehearsal_rooms(balance: float | None = None) -> Market:

@@ -25,7 +25,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from marketsim import _validation as check
-from marketsim.market import Market, Treatment
+from marketsim.model import Market, Treatment
 
 MARKET_KEYS = ("listing_counts", "mean_busy_time", "arrival_rate", "customer_shares",
                "consideration", "utility", "outside_utility", "listing_types",
@@ -128,13 +128,11 @@ def check_feature(market: Market, treatment: Treatment) -> None:
         treatment.resolve(market)
     except ValueError as error:
         raise ValueError(f"treatment.{error}") from None
-    from marketsim.meanfield import gte
-
-    if gte(market, treatment) == 0.0:
+    if not treatment.changes_choice(market):
         raise ValueError(
-            "treatment must change bookings in the market, got a large-market effect of "
-            f"exactly 0 for {treatment!r} (a null treatment, or a market where nobody can "
-            "book)"
+            "treatment must change bookings in the market, got one that leaves every "
+            f"customer's choice unchanged: {treatment!r} (a null treatment, or a market where "
+            "nobody can book)"
         )
 
 
@@ -148,7 +146,7 @@ def load_scenario(path: str | Path) -> Scenario:
     Parameters
     ----------
     path : str or Path
-        A JSON file in the format of :mod:`marketsim.scenario_file`.
+        A JSON file in the format of :mod:`marketsim.model.scenario_file`.
 
     Returns
     -------

@@ -46,7 +46,7 @@ def plot_balance_sweep(
     Examples
     --------
     >>> import marketsim as ms
-    >>> from marketsim.plotting.sweep import plot_balance_sweep
+    >>> from marketsim.meanfield.figures import plot_balance_sweep
     >>> table = ms.meanfield.sweep_balance(
     ...     ms.scenarios.rehearsal_rooms(), ms.Treatment(utility_shift=0.3),
     ...     [ms.CustomerSide(0.5), ms.ListingSide(0.5)], balances=[0.1, 1.0, 10.0])

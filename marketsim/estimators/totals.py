@@ -1,0 +1,148 @@
+"""Group totals of a ledger: the rates ``Q_xy`` every estimator combines, and `Estimate`."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from marketsim import _validation as check
+from marketsim.designs import CellSplit
+from marketsim.engine.ledger import Ledger
+
+METRICS = ("bookings", "revenue", "conversion")
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """One estimate with the naive standard error an analyst would report."""
+
+    value: float
+    standard_error: float
+
+    def interval(self, level: float = 0.95) -> tuple[float, float]:
+        """Normal-theory confidence interval at ``level``."""
+        from scipy.stats import norm
+
+        level = check.number("level", level, low=0.0, high=1.0, low_open=True,
+                             high_open=True)
+        half = norm.ppf(0.5 + level / 2.0) * self.standard_error
+        return self.value - half, self.value + half
+
+
+@dataclass(frozen=True, eq=False)
+class GroupTotals:
+    """A ledger's bookings summed by listing type and (customer status, listing
+    status) group.
+
+    Attributes
+    ----------
+    metric : str
+    totals : ndarray, shape (n_listing_types, 2, 2)
+        Sum of the metric's value of each booking (1, or the price for revenue):
+        ``totals[j, x, y]`` for listing type ``j``, customer status ``x`` and
+        listing status ``y``.
+    squares : ndarray, shape (n_listing_types, 2, 2)
+        Sum of the squared values.
+    arrivals : ndarray, shape (2,)
+        Arrivals of control and treated customers in the window.
+    scale : float
+        Divisor turning totals into ``Q_xy``: the window, or for conversion the
+        number of arrivals (at least 1).
+    """
+
+    metric: str
+    totals: np.ndarray
+    squares: np.ndarray
+    arrivals: np.ndarray
+    scale: float
+
+    @classmethod
+    def of(cls, ledger: Ledger, metric: str = "bookings") -> GroupTotals:
+        """Sum ``ledger`` by listing type and group for ``metric``."""
+        check.choice("metric", metric, METRICS)
+        cells = ledger.cells
+        value = np.ones(cells.n_listing_cells)
+        if metric == "revenue":
+            if cells.price is None:
+                raise ValueError(
+                    "metric 'revenue' needs a market with prices: pass price=[...] to "
+                    "ms.Market, got a market without prices"
+                )
+            value = cells.price
+        bookings = np.asarray(ledger.bookings, dtype=float)
+        shape = (cells.market.n_listing_types, 2, 2)
+        totals, squares = np.zeros(shape), np.zeros(shape)
+        customer = cells.split.customer_treated.astype(int)[:, None]
+        listing = cells.split.listing_treated.astype(int)[None, :]
+        kind = cells.split.listing_type[None, :]
+        np.add.at(totals, (kind, customer, listing), bookings * value[None, :])
+        np.add.at(squares, (kind, customer, listing), bookings * (value**2)[None, :])
+        arrivals = np.zeros(2)
+        np.add.at(arrivals, customer[:, 0], np.asarray(ledger.arrivals, dtype=float))
+        scale = ledger.window if metric != "conversion" else max(ledger.arrival_count, 1.0)
+        return cls(metric, totals, squares, arrivals, float(scale))
+
+    def combine(self, weights: np.ndarray) -> Estimate:
+        """``sum(weights * Q)`` with its naive standard error (see the module notes).
+
+        ``weights`` has shape (n_listing_types, 2, 2), as from
+        :meth:`Estimator.stratum_weights`.
+        """
+        value = float(np.sum(weights * self.totals)) / self.scale
+        if self.metric != "conversion":
+            variance = float(np.sum(weights**2 * self.squares))
+        else:  # multinomial outcome per arriving customer, within each customer group
+            variance = 0.0
+            for x in (0, 1):
+                if self.arrivals[x] > 0:
+                    spread = float(np.sum(weights[:, x] ** 2 * self.squares[:, x]))
+                    mean = float(np.sum(weights[:, x] * self.totals[:, x]))
+                    variance += max(spread - mean**2 / self.arrivals[x], 0.0)
+        return Estimate(value, math.sqrt(variance) / self.scale)
+
+    def analysis_split(self, split: CellSplit) -> CellSplit:
+        """The split at which coefficients are evaluated: ``split`` itself, except for
+        conversion, where the treated share of customers is the observed share of
+        arrivals (kept as designed when a group had no arrivals)."""
+        designed = split.customer_fraction
+        if self.metric != "conversion" or not (self.arrivals > 0).all() \
+                or not 0.0 < designed < 1.0:
+            return split
+        observed = self.arrivals[1] / self.arrivals.sum()
+        treated = split.customer_treated
+        ratio = np.where(treated, observed / designed, (1.0 - observed) / (1.0 - designed))
+        return replace(split, customer_share=split.customer_share * ratio)
+
+
+def group_rates(ledger: Ledger, metric: str = "bookings") -> tuple[np.ndarray, np.ndarray]:
+    """Metric per unit time of each (customer status, listing status) group.
+
+    Parameters
+    ----------
+    ledger : Ledger
+    metric : {"bookings", "revenue", "conversion"}
+
+    Returns
+    -------
+    rates : ndarray, shape (2, 2)
+        ``rates[x, y]`` is ``Q_xy`` (for conversion: per arrival instead of per
+        unit time).
+    variances : ndarray, shape (2, 2)
+        Naive (Poisson) variance of each ``Q_xy``. (The conversion estimate's
+        own standard error also accounts for the arrivals: :meth:`GroupTotals.combine`.)
+    """
+    groups = GroupTotals.of(ledger, metric)
+    return groups.totals.sum(axis=0) / groups.scale, groups.squares.sum(axis=0) / groups.scale**2
+
+
+def metric_rate(ledger: Ledger, metric: str = "bookings") -> float:
+    """The metric of the whole market in the window (e.g. total bookings per unit
+    time); the difference of this between the two global worlds is the global
+    treatment effect."""
+    groups = GroupTotals.of(ledger, metric)
+    return float(groups.totals.sum() / groups.scale)
+
+
+__all__ = ["METRICS", "Estimate", "GroupTotals", "group_rates", "metric_rate"]

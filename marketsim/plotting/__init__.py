@@ -1,1 +1,0 @@
-"""Matplotlib figures. Each module draws one kind of result; import matplotlib lazily."""

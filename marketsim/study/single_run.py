@@ -1,0 +1,98 @@
+"""One simulated run, with the large-market warm start resolved before the engine runs.
+
+The warm start ``start="steady"`` needs the large-market model, which sits above the
+engine in the flow; this module sits above both, so neither has to know the other.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numpy.typing import ArrayLike
+
+from marketsim import _validation as check
+from marketsim.designs import Design
+from marketsim.engine import START_OPTIONS, Ledger, MarketCells, build_cells, run_cells
+from marketsim.meanfield import steady_state
+from marketsim.model import Market, Treatment
+from marketsim.randomness import SeedLike
+
+
+def simulate(
+    market: Market,
+    treatment: Treatment | None = None,
+    design: Design | None = None,
+    *,
+    horizon: float,
+    burn_in: float = 0.0,
+    seed: SeedLike = None,
+    start: str | ArrayLike = "empty",
+    bins: int | None = None,
+) -> Ledger:
+    """Simulate the finite market exactly and record the measurement window.
+
+    The market is a continuous-time Markov chain whose state is the number of
+    available listings per listing cell; the simulation is exact (no time
+    steps) and its cost per event does not depend on the number of listings.
+
+    Parameters
+    ----------
+    market : Market
+    treatment : Treatment, optional
+        The feature under test (default: none).
+    design : Design, optional
+        Who is treated (default :class:`~marketsim.GlobalControl`).
+    horizon : float
+        Length of the measurement window, > 0 (and at least ``1e-9 * burn_in``,
+        so that rounding cannot swallow the window).
+    burn_in : float
+        Time simulated before the window starts and not recorded, >= 0.
+    seed : int, SeedSequence, Generator or None
+        Same seed, same ledger.
+    start : {"empty", "steady"} or array_like of int, shape (n_listing_cells,)
+        Availability at time 0: ``"empty"`` means every listing available;
+        ``"steady"`` the large-market steady state rounded to whole listings
+        (:func:`marketsim.meanfield.steady_state`; a warm start that shortens
+        the burn-in needed); or explicit counts per listing cell, each between
+        0 and the cell's size. Measured on the rehearsal-room scenario (mean
+        busy times 2 and 3 hours): from ``"empty"`` the expected booking rate
+        starts 30% high and needs about 6 hours of burn-in to come within 1%
+        of its long-run value (10 hours for 0.1%; large-market path, confirmed
+        by simulation); from ``"steady"`` the mean over replications is within
+        Monte Carlo error (about 1.5%) of the long-run value from the first
+        quarter hour, at 40, 400 and 4,000 listings, so a burn-in of half a
+        mean busy time is plenty.
+    bins : int, optional
+        Also count bookings and arrivals in this many equal time bins of the window.
+
+    Returns
+    -------
+    Ledger
+
+    Examples
+    --------
+    >>> import marketsim as ms
+    >>> m = ms.scenarios.rehearsal_rooms()
+    >>> ledger = ms.simulate(m, horizon=50.0, burn_in=10.0, seed=1)
+    >>> ledger.bookings.shape
+    (2, 2)
+    """
+    cells = build_cells(market, treatment, design)
+    return run_cells(cells, horizon=horizon, burn_in=burn_in, seed=seed,
+                     start=starting_availability(cells, start), bins=bins)
+
+
+def starting_availability(cells: MarketCells, start: str | ArrayLike) -> np.ndarray:
+    """Available listings per listing cell at time 0, as a fresh int64 array.
+
+    ``"steady"`` is the large-market steady state of the cells rounded to whole
+    listings; ``"empty"`` and explicit counts are checked by the engine
+    (:meth:`~marketsim.engine.MarketCells.starting_counts`).
+    """
+    if isinstance(start, str) and check.choice("start", start, START_OPTIONS) == "steady":
+        state = steady_state(cells.market, cells.treatment, cells.design)
+        rounded = np.rint(state.available).astype(np.int64)
+        return np.clip(rounded, 0, cells.listing_count)
+    return cells.starting_counts(start)
+
+
+__all__ = ["simulate", "starting_availability"]

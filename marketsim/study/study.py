@@ -1,0 +1,293 @@
+"""Study: the Monte Carlo study of designs and estimators on one market."""
+
+from __future__ import annotations
+
+import multiprocessing
+import time
+import warnings
+from collections.abc import Sequence
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+
+import numpy as np
+import pandas as pd
+
+from marketsim import _validation as check
+from marketsim.designs import Design, GlobalControl, GlobalTreatment
+from marketsim.engine import START_OPTIONS, MarketCells, build_cells
+from marketsim.estimators import METRICS, Estimator
+from marketsim.model import Market, Treatment
+from marketsim.randomness import SeedLike, seed_sequence
+from marketsim.study.arms import Arm, arm_list
+from marketsim.study.replication import (
+    Outcome,
+    Plan,
+    chunks,
+    init_worker,
+    progress_bar,
+    replicate,
+    run_chunk,
+)
+from marketsim.study.result import StudyResult, summarize
+from marketsim.study.single_run import starting_availability
+
+_MP_CONTEXT: str | None = None
+"""Start method of worker processes (None: the platform default). Tests set "spawn"."""
+
+
+class Study:
+    """Monte Carlo study of experiment designs on one market and treatment.
+
+    Parameters
+    ----------
+    market : Market
+    treatment : Treatment
+        The feature under test.
+    arms : sequence of Arm or Design
+        The designs to score; a bare design is ``Arm(design)`` (the design's own
+        estimators that fit it). Arm names must be distinct.
+    horizon : float
+        Length of the measurement window of every run, > 0.
+    burn_in : float
+        Time simulated before the window and not recorded, >= 0.
+    metric : str or sequence of str
+        One or more of ``"bookings"`` (per unit time), ``"revenue"`` (per unit
+        time; needs prices on the market) and ``"conversion"`` (bookings per
+        arrival). Default ``"bookings"``.
+    start : {"empty", "steady"}
+        Availability at time 0 of every run: every listing available, or the
+        large-market steady state of each world rounded to whole listings (a
+        warm start that shortens the burn-in needed; see :func:`marketsim.simulate`).
+
+    Notes
+    -----
+    The truth is the global treatment effect over the same window as the
+    experiments (same horizon, burn-in and starting state), so a short burn-in
+    affects truth and estimates alike. Everything is checked here, before any
+    simulation: the arms, that each estimator fits its design, the metrics.
+
+    Examples
+    --------
+    >>> import marketsim as ms
+    >>> market = ms.scenarios.rehearsal_rooms()
+    >>> study = ms.Study(market, ms.scenarios.instant_confirmation(),
+    ...                  arms=[ms.CustomerSide(0.5), ms.ListingSide(0.5)],
+    ...                  horizon=100.0, burn_in=20.0)
+    >>> result = study.run(replications=10, seed=1, progress=False)
+    >>> result.summary[["arm", "estimator"]].values.tolist()
+    [['customer-side (a_C=0.5)', 'customer-side'], ['listing-side (a_L=0.5)', 'listing-side']]
+    """
+
+    def __init__(
+        self,
+        market: Market,
+        treatment: Treatment,
+        arms: Sequence[Arm | Design],
+        *,
+        horizon: float,
+        burn_in: float = 0.0,
+        metric: str | Sequence[str] = "bookings",
+        start: str = "empty",
+    ) -> None:
+        if not isinstance(market, Market):
+            raise ValueError(f"market must be a marketsim.Market, got {type(market).__name__}")
+        if not isinstance(treatment, Treatment):
+            raise ValueError(
+                "treatment must be a marketsim.Treatment (e.g. ms.Treatment(utility_shift="
+                f"0.2)), got {type(treatment).__name__}"
+            )
+        self.market = market
+        self.treatment = treatment
+        self.horizon = check.number("horizon", horizon, low=0.0, low_open=True)
+        self.burn_in = check.number("burn_in", burn_in, low=0.0)
+        self.metrics = _metrics(metric, market)
+        self.arms = arm_list(arms)
+        self.start = check.choice("start", start, START_OPTIONS)
+        self.estimators = tuple(arm.resolve(market) for arm in self.arms)
+        self._plan = self._build_plan()
+
+    def _build_plan(self) -> Plan:
+        def world(design: Design) -> tuple[MarketCells, np.ndarray]:
+            cells = build_cells(self.market, self.treatment, design)
+            return cells, starting_availability(cells, self.start)
+
+        control, control_start = world(GlobalControl())
+        treated, treated_start = world(GlobalTreatment())
+        arm_worlds = [world(arm.design) for arm in self.arms]
+        weights = tuple(
+            tuple(
+                estimator.stratum_weights(cells.split, self.market)
+                if type(estimator).estimate is Estimator.estimate else None
+                for estimator in estimators
+            )
+            for (cells, _), estimators in zip(arm_worlds, self.estimators)
+        )
+        return Plan(
+            control=control, treated=treated, control_start=control_start,
+            treated_start=treated_start,
+            arm_cells=tuple(c for c, _ in arm_worlds),
+            arm_starts=tuple(s for _, s in arm_worlds),
+            arm_estimators=self.estimators, arm_weights=weights, metrics=self.metrics,
+            horizon=self.horizon, burn_in=self.burn_in,
+        )
+
+    def rows(self) -> pd.DataFrame:
+        """The rows the summary will have: arm x estimator x metric, in order."""
+        return pd.DataFrame(
+            [
+                {"arm": arm.label, "design": arm.design.label, "estimator": e.name,
+                 "metric": metric}
+                for arm, estimators in zip(self.arms, self.estimators)
+                for e in estimators
+                for metric in self.metrics
+            ],
+            columns=["arm", "design", "estimator", "metric"],
+        )
+
+    def run(
+        self,
+        replications: int,
+        seed: SeedLike = None,
+        workers: int = 1,
+        progress: bool = True,
+    ) -> StudyResult:
+        """Run the replications and summarize them.
+
+        Parameters
+        ----------
+        replications : int
+            Number of independent replications, >= 2.
+        seed : int, SeedSequence, Generator or None
+            Same seed, same result, whatever ``workers`` is.
+        workers : int
+            Worker processes (>= 1); 1 runs in this process.
+        progress : bool
+            Show a progress bar (it appears only after a second of running).
+
+        Returns
+        -------
+        StudyResult
+
+        Notes
+        -----
+        Ctrl-C (``KeyboardInterrupt``) stops the run: pending work is cancelled
+        and the result of the replications already finished is returned with a
+        warning (at least 2 must have finished; otherwise the interrupt goes on).
+
+        With ``workers > 1`` the market, designs and estimators are sent to worker
+        processes, so they must pickle. Where workers start by "spawn" (macOS and
+        Windows), a custom design or estimator must be importable from a module:
+        a class defined in a notebook cell works with ``workers=1`` only.
+        """
+        count = check.whole_number("replications", replications, low=2)
+        workers = check.whole_number("workers", workers, low=1)
+        if not isinstance(progress, bool):
+            raise ValueError(f"progress must be True or False, got {progress!r}")
+        root_seed = seed_sequence(seed)
+        root = (root_seed.entropy, tuple(root_seed.spawn_key), root_seed.pool_size)
+        outcomes: dict[int, Outcome] = {}
+        began = time.perf_counter()
+        interrupted = False
+        workers = min(workers, count)
+        try:
+            if workers == 1:
+                self._run_here(root, count, outcomes, progress)
+            else:
+                self._run_workers(root, count, workers, outcomes, progress)
+        except KeyboardInterrupt:
+            interrupted = True
+            if len(outcomes) < 2:
+                raise
+            warnings.warn(
+                f"study interrupted: {len(outcomes)} of {count} replications finished; "
+                "returning the summary of those (wider Monte Carlo errors)",
+                RuntimeWarning, stacklevel=2,
+            )
+        elapsed = time.perf_counter() - began
+        return summarize(self.metrics, self.rows(), outcomes, count, interrupted, elapsed,
+                         workers)
+
+    def _run_here(self, root: tuple, count: int, outcomes: dict, progress: bool) -> None:
+        bar = progress_bar(count, progress)
+        try:
+            for index in range(count):
+                outcomes[index] = replicate(self._plan, root, index)
+                bar.update(1)
+        finally:
+            bar.close()
+
+    def _run_workers(self, root: tuple, count: int, workers: int, outcomes: dict,
+                     progress: bool) -> None:
+        context = multiprocessing.get_context(_MP_CONTEXT)
+        executor = ProcessPoolExecutor(max_workers=workers, mp_context=context,
+                                       initializer=init_worker, initargs=(self._plan,))
+        pending: set = set()
+        bar = None
+        clean = False
+        try:
+            began = time.perf_counter()  # one replication here, to size the blocks
+            outcomes[0] = replicate(self._plan, root, 0)
+            blocks = chunks(1, count, workers, time.perf_counter() - began)
+            pending = {executor.submit(run_chunk, root, block) for block in blocks}
+            bar = progress_bar(count, progress, initial=1)  # after the workers start
+            while pending:
+                done, pending = wait(pending, return_when=FIRST_COMPLETED)
+                for future in done:
+                    indices, results = future.result()
+                    outcomes.update(zip(indices, results))
+                    bar.update(len(indices))
+            clean = True
+        finally:
+            if bar is not None:
+                bar.close()
+            if clean:
+                executor.shutdown(wait=True)
+            else:
+                for future in pending:
+                    future.cancel()
+                for future in pending:  # finished while we were being interrupted
+                    if future.done() and not future.cancelled() and not future.exception():
+                        indices, results = future.result()
+                        outcomes.update(zip(indices, results))
+                _stop(executor)
+
+    def __repr__(self) -> str:
+        arms = "; ".join(repr(a) for a in self.arms)
+        return (
+            f"Study({self.market!r}, {self.treatment!r}, arms=[{arms}], "
+            f"horizon={self.horizon:g}, burn_in={self.burn_in:g}, "
+            f"metrics={list(self.metrics)})"
+        )
+
+
+def _stop(executor: ProcessPoolExecutor) -> None:
+    """Cancel queued work and end the worker processes this study started."""
+    started = dict(getattr(executor, "_processes", None) or {})
+    executor.shutdown(wait=False, cancel_futures=True)
+    for process in started.values():
+        if process.is_alive():
+            process.terminate()
+    for process in started.values():
+        process.join(timeout=5)
+
+
+def _metrics(metric: object, market: Market) -> tuple[str, ...]:
+    items = [metric] if isinstance(metric, str) else metric
+    if not isinstance(items, Sequence) or len(items) == 0:
+        listed = ", ".join(repr(m) for m in METRICS)
+        raise ValueError(f"metric must be one of {listed} or a non-empty list of them, "
+                         f"got {metric!r}")
+    result = []
+    for item in items:
+        check.choice("metric", item, METRICS)
+        if item in result:
+            raise ValueError(f"metric must not repeat a name, got {item!r} twice")
+        result.append(item)
+    if "revenue" in result and market.price is None:
+        raise ValueError(
+            "metric 'revenue' needs a market with prices: pass price=[...] to ms.Market, "
+            "got a market without prices"
+        )
+    return tuple(result)
+
+
+__all__ = ["Study"]
