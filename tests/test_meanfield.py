@@ -280,8 +280,9 @@ def test_plot_of_the_sweep():
 
 # --------------------------------------------------------------------------- facts of the trade
 def test_facts_of_the_trade_in_the_limit():
-    """Facts of the trade (DESIGN.md section 8; Johari et al., Management Science
-    68(10), 2022, Theorems on the CR/LR limits): customer-side randomization is
+    """Facts of the trade (DESIGN.md section 8; "Experimental design in two-sided
+    platforms: an analysis of bias", Management Science 68(10), 2022, on the
+    customer- and listing-side limits): customer-side randomization is
     unbiased as balance -> 0, listing-side as balance -> infinity, and two-sided
     randomization with balance-following fractions at both ends; a one-sided design's
     bias can exceed the effect itself."""
@@ -306,10 +307,11 @@ def test_facts_of_the_trade_in_the_limit():
 
 
 def test_corrected_two_sided_versus_naive_at_intermediate_balance():
-    """The interference-corrected two-sided estimators (DESIGN.md section 4, after
-    Johari et al., Management Science 68(10), 2022) against the naive one, in the
-    large-market limit, at balance 0.3..3 in three markets, two treatments and two
-    designs (60 points). Formulas untouched; the assertions record what was found:
+    """The interference-corrected two-sided estimators (DESIGN.md section 4: this
+    project's reading of a published heuristic whose exact normalisation was not
+    checked) against the naive one, in the large-market limit, at balance 0.3..3 in
+    three markets, two treatments and two designs (60 points). Formulas untouched;
+    the assertions record what was found:
 
     - the naive two-sided estimator overestimates the effect at every point
       (relative bias +16% to +259%);

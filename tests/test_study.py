@@ -107,12 +107,12 @@ def balance_extremes() -> dict[str, ms.StudyResult]:
 def test_customer_side_is_unbiased_when_demand_is_scarce_and_biased_when_supply_is(
         balance_extremes):
     """Facts of the trade (common practice, stated in papers on marketplace
-    experiments, e.g. Johari, Li, Liskovich and Weintraub, Management Science
-    68(10), 2022): customer-side randomization is nearly unbiased when demand is
-    scarce and strongly biased when supply is scarce, where treated customers take
-    listings from control customers. The large-market model of this market gives
-    relative biases of about +0.4% (balance 0.02) and +214% (balance 5): the bias
-    can exceed the effect itself."""
+    experiments, e.g. "Experimental design in two-sided platforms: an analysis of
+    bias", Management Science 68(10), 2022): customer-side randomization is nearly
+    unbiased when demand is scarce and strongly biased when supply is scarce, where
+    treated customers take listings from control customers. The large-market model
+    of this market gives relative biases of about +0.4% (balance 0.02) and +214%
+    (balance 5): the bias can exceed the effect itself."""
     scarce_demand = row(balance_extremes["demand scarce"], "customer-side")
     scarce_supply = row(balance_extremes["supply scarce"], "customer-side")
     assert nearly_unbiased(scarce_demand), scarce_demand.to_dict()

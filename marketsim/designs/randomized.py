@@ -105,8 +105,8 @@ class TwoSided(Design):
 
     References
     ----------
-    Johari, Li, Liskovich and Weintraub, "Experimental design in two-sided
-    platforms: an analysis of bias", Management Science 68(10), 2022.
+    "Experimental design in two-sided platforms: an analysis of bias",
+    Management Science 68(10), 2022: the two-sided design.
     """
 
     customers: float = 0.5
@@ -162,7 +162,8 @@ class TwoSided(Design):
 
         References
         ----------
-        Johari et al., Management Science 68(10), 2022.
+        "Experimental design in two-sided platforms: an analysis of bias",
+        Management Science 68(10), 2022: the rule for the fractions.
 
         Examples
         --------

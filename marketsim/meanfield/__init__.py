@@ -40,8 +40,8 @@ References
 Kurtz, T. G., "Solutions of ordinary differential equations as limits of pure
 jump Markov processes", Journal of Applied Probability 7(1), 1970.
 
-Johari, Li, Liskovich and Weintraub, "Experimental design in two-sided
-platforms: an analysis of bias", Management Science 68(10), 2022.
+"Experimental design in two-sided platforms: an analysis of bias", Management
+Science 68(10), 2022: the large-market view of experiments in this model.
 """
 
 from marketsim.meanfield.expected import ESTIMATE_COLUMNS, expected_estimates, sweep_balance

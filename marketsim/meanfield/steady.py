@@ -248,7 +248,8 @@ def steady_state(
 
     References
     ----------
-    Kurtz, J. Appl. Prob. 7(1), 1970; Johari et al., Management Science 68(10), 2022.
+    Kurtz, J. Appl. Prob. 7(1), 1970; "Experimental design in two-sided platforms:
+    an analysis of bias", Management Science 68(10), 2022.
 
     Examples
     --------
