@@ -10,7 +10,8 @@ model -> designs -> engine -> estimators -> meanfield -> calibration -> study ->
 planning -> report -> cli.
 """
 
-from marketsim import meanfield
+from marketsim import calibration, meanfield
+from marketsim.calibration import Calibration, calibrate
 from marketsim.designs import (
     CellSplit,
     CustomerSide,
@@ -39,7 +40,7 @@ from marketsim.planning import (
     power_table,
     sweep,
 )
-from marketsim.study import Arm, Study, StudyResult, simulate
+from marketsim.study import Arm, Study, StudyResult, simulate, simulate_log
 
 __version__ = "0.1.0"
 
@@ -57,6 +58,10 @@ __all__ = [
     "MarketCells",
     "build_cells",
     "simulate",
+    "simulate_log",
+    "calibrate",
+    "Calibration",
+    "calibration",
     "Ledger",
     "scenarios",
     "meanfield",

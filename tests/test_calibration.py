@@ -12,7 +12,7 @@ from marketsim.calibration import calibrate, check_log
 from marketsim.calibration.availability import available_at
 from marketsim.calibration.busy import complete_durations, exponential_test, fit_busy_times
 from marketsim.calibration.choice import considered_counts, fit_logit, group_choices
-from marketsim.engine.logs import simulate_log
+from marketsim.study import simulate_log
 
 MARKET = ms.Market(
     listing_counts=[30, 20], mean_busy_time=[2.0, 3.0], arrival_rate=20.0,
@@ -72,7 +72,7 @@ def test_round_trip_without_impressions_given_true_consideration(round_trip_log)
 
 def test_without_impressions_consideration_is_required(round_trip_log):
     log = round_trip_log
-    with pytest.raises(ValueError, match="consideration must be given.*not separately"):
+    with pytest.raises(ValueError, match=r"consideration must be given.*not separately"):
         calibrate(log.sessions, log.stays, log.listings)
 
 
@@ -290,7 +290,7 @@ def test_bad_logs_are_refused_with_table_column_count_and_example(table, change,
 
 
 def test_a_window_without_sessions_is_refused():
-    with pytest.raises(ValueError, match="window .* must hold at least two sessions"):
+    with pytest.raises(ValueError, match=r"window .* must hold at least two sessions"):
         check_log(**_small_log(), window=(10.0, 20.0))
 
 

@@ -16,8 +16,8 @@ import pandas as pd
 from marketsim.calibration.arrivals import StationarityTest, stationarity_test
 from marketsim.calibration.busy import ExponentialTest, complete_durations, exponential_test
 from marketsim.calibration.tables import CheckedLog
-from marketsim.market import Market
 from marketsim.meanfield import steady_state
+from marketsim.model import Market
 
 BOOKING_TOLERANCE = 0.10
 """Relative gap between logged and predicted booking rates the booking check tolerates

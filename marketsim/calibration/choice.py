@@ -18,7 +18,6 @@ from scipy import optimize
 
 from marketsim.calibration.tables import CheckedLog
 
-
 GRADIENT_TOLERANCE = 1e-8
 """Largest gradient component of the per-session negative log-likelihood at the optimum."""
 

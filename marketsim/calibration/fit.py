@@ -20,7 +20,7 @@ from marketsim.calibration.choice import (
 from marketsim.calibration.choice_without_impressions import fit_logit_given_consideration
 from marketsim.calibration.result import Calibration, parameter_table
 from marketsim.calibration.tables import CheckedLog, check_log
-from marketsim.market import Market
+from marketsim.model import Market
 
 NOT_IDENTIFIED = (
     "The log has no impressions, so consideration and utility are not separately "

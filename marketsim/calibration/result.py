@@ -13,7 +13,7 @@ from marketsim.calibration.arrivals import ArrivalFit
 from marketsim.calibration.busy import BusyFit
 from marketsim.calibration.checks import FitChecks
 from marketsim.calibration.choice import ConsiderationFit, LogitFit
-from marketsim.market import Market
+from marketsim.model import Market
 from marketsim.randomness import SeedLike, seed_sequence
 
 Z95 = 1.959963984540054

@@ -18,7 +18,6 @@ explicit ``window`` are set aside and counted in :attr:`CheckedLog.set_aside`.
 from __future__ import annotations
 
 import difflib
-from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
 

@@ -22,7 +22,7 @@ from numba import njit
 def _grown(values, needed):
     """``values`` copied into an array at least twice as long (first axis)."""
     size = max(needed, 2 * values.shape[0])
-    bigger = np.empty((size,) + values.shape[1:], dtype=values.dtype)
+    bigger = np.empty((size,) + values.shape[1:], dtype=values.dtype)  # noqa: RUF005 (numba)
     bigger[: values.shape[0]] = values
     return bigger
 

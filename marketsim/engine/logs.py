@@ -1,8 +1,9 @@
 """Platform logs from the simulator: the four tables a marketplace would record.
 
-:func:`simulate_log` runs the market listing by listing (exponential busy times only)
-with its own kernel, so that the count-based engine of :func:`marketsim.simulate`
-pays nothing for logging.
+:func:`run_logged_cells` runs the market listing by listing (exponential busy times
+only) with its own kernel, so that the count-based engine behind
+:func:`marketsim.simulate` pays nothing for logging. The public front is
+:func:`marketsim.simulate_log`, which also resolves warm starts.
 """
 
 from __future__ import annotations
@@ -14,11 +15,8 @@ import numpy as np
 import pandas as pd
 
 from marketsim import _validation as check
-from marketsim.cells import MarketCells, build_cells
-from marketsim.designs import Design
-from marketsim.engine.front import StartLike, starting_availability
+from marketsim.engine.cells import MarketCells
 from marketsim.engine.logging_kernel import run_logged
-from marketsim.market import Market, Treatment
 from marketsim.randomness import SeedLike, engine_streams
 
 TABLES = ("listings", "stays", "sessions", "impressions")
@@ -83,46 +81,19 @@ class PlatformLog:
                 f"listings={len(self.listings):,})")
 
 
-def simulate_log(
-    market: Market,
-    treatment: Treatment | None = None,
-    design: Design | None = None,
-    *,
-    horizon: float,
-    burn_in: float = 0.0,
-    seed: SeedLike = None,
-    start: StartLike = "empty",
-) -> PlatformLog:
-    """Simulate the market and return the logs a platform would have recorded.
+def run_logged_cells(cells: MarketCells, *, horizon: float, burn_in: float = 0.0,
+                     seed: SeedLike = None, start: np.ndarray | str = "empty") -> PlatformLog:
+    """Simulate built cells listing by listing and return the logs (see
+    :func:`marketsim.simulate_log`); ``start`` is ``"empty"`` or counts per listing cell.
 
-    The same market, treatment and design as :func:`marketsim.simulate`, but every
-    listing keeps its identity: each customer's considered listings (drawn one by
-    one: each available listing of type ``j`` with probability ``consideration[i, j]``)
-    and choice are logged, and so is every stay. A released listing is drawn
-    uniformly among the busy listings of its cell, which is exact because busy times
-    are exponential (memoryless). Arrival times come from the same random stream as
-    :func:`marketsim.simulate` with the same seed; consideration and choices do not
-    (they are drawn listing by listing here).
-
-    Parameters
-    ----------
-    market, treatment, design, horizon, burn_in, seed, start
-        As for :func:`marketsim.simulate`.
-
-    Returns
-    -------
-    PlatformLog
-
-    Examples
-    --------
-    >>> import marketsim as ms
-    >>> log = ms.simulate_log(ms.scenarios.rehearsal_rooms(), horizon=5.0, seed=1)
-    >>> list(log.sessions.columns)
-    ['session_id', 'time', 'customer_type', 'booked_listing', 'treated']
+    Raises
+    ------
+    ValueError
+        If the window or the start is invalid.
     """
-    cells = build_cells(market, treatment, design)
     horizon, burn_in = check.window(horizon, burn_in)
-    available = starting_availability(cells, start)
+    available = cells.starting_counts(start)
+    market, split = cells.market, cells.split
     count = cells.listing_count.astype(np.int64)
     offset = np.r_[0, np.cumsum(count)[:-1]].astype(np.int64)
     pool = np.arange(count.sum(), dtype=np.int64)
@@ -133,7 +104,6 @@ def simulate_log(
         cells.arrival_rate, np.cumsum(cells.customer_share), cells.outside_weight,
         cells.weight, cells.consideration, count, cells.release_rate, available,
         burn_in, burn_in + horizon, rng_arrivals, rng_choices, rng_releases, pool, offset)
-    split = cells.split
     listing_cell = np.repeat(np.arange(count.size), count)
     listings = pd.DataFrame({
         "listing_id": np.arange(count.sum()),

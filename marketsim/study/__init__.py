@@ -35,8 +35,8 @@ Monte Carlo error of each bias is computed from the paired differences
 from marketsim.study.arms import Arm
 from marketsim.study.replication import default_workers
 from marketsim.study.result import CAVEAT, SUMMARY_COLUMNS, StudyResult, rmse_influence
-from marketsim.study.single_run import simulate
+from marketsim.study.single_run import simulate, simulate_log
 from marketsim.study.study import Study
 
 __all__ = ["Arm", "Study", "StudyResult", "SUMMARY_COLUMNS", "CAVEAT", "default_workers",
-           "rmse_influence", "simulate"]
+           "rmse_influence", "simulate", "simulate_log"]
