@@ -226,10 +226,10 @@ def test_sweep_of_a_design_that_follows_balance_with_chosen_estimators():
 def test_ctrl_c_during_a_simulation_sweep_keeps_the_points_finished(monkeypatch):
     """Ctrl-C stops the whole sweep (not just the current point) and returns what
     finished, with a warning."""
-    import marketsim.study.study as study_module
+    from marketsim.study import replication
 
     calls = {"n": 0}
-    real = study_module.replicate
+    real = replication.replicate
 
     def interrupted_in_second_point(*args):
         if calls["n"] == 7:  # 4 replications of the first point, 3 of the second
@@ -237,7 +237,7 @@ def test_ctrl_c_during_a_simulation_sweep_keeps_the_points_finished(monkeypatch)
         calls["n"] += 1
         return real(*args)
 
-    monkeypatch.setattr(study_module, "replicate", interrupted_in_second_point)
+    monkeypatch.setattr(replication, "replicate", interrupted_in_second_point)
     with pytest.warns(RuntimeWarning, match="sweep interrupted: returning 2 of 3 points"):
         table = sweep(ms.scenarios.rehearsal_rooms(), ms.scenarios.instant_confirmation(),
                       [ms.CustomerSide(0.5)], values=[0.5, 1.0, 2.0], mode="simulation",

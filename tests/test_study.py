@@ -16,8 +16,7 @@ import pandas as pd
 import pytest
 
 import marketsim as ms
-import marketsim.study.study as study_module
-from marketsim.study import SUMMARY_COLUMNS, replication, result
+from marketsim.study import SUMMARY_COLUMNS, backends, replication, result
 
 
 def one_type_market(listings: int, balance: float, outside_utility: float) -> ms.Market:
@@ -206,7 +205,7 @@ def test_workers_started_with_spawn_give_the_same_result(monkeypatch):
                         metric=["bookings"])
     pickle.loads(pickle.dumps(study._plan))
     here = study.run(4, seed=1, workers=1, progress=False)
-    monkeypatch.setattr(study_module, "_MP_CONTEXT", "spawn")
+    monkeypatch.setattr(backends, "MP_CONTEXT", "spawn")
     spawned = study.run(4, seed=1, workers=2, progress=False)
     pd.testing.assert_frame_equal(here.summary, spawned.summary, check_exact=True)
 
@@ -226,7 +225,7 @@ def test_generator_and_seed_sequence_seeds():
 # ------------------------------------------------------------------ interruption
 def test_ctrl_c_returns_the_finished_replications_with_a_warning(monkeypatch):
     calls = {"n": 0}
-    real = study_module.replicate
+    real = replication.replicate
 
     def interrupted_after_three(*args):
         if calls["n"] == 3:
@@ -234,14 +233,14 @@ def test_ctrl_c_returns_the_finished_replications_with_a_warning(monkeypatch):
         calls["n"] += 1
         return real(*args)
 
-    monkeypatch.setattr(study_module, "replicate", interrupted_after_three)
+    monkeypatch.setattr(replication, "replicate", interrupted_after_three)
     study = small_study(arms=[ms.CustomerSide(0.5)], metric=["bookings"])
     with pytest.warns(RuntimeWarning, match="study interrupted: 3 of 10 replications finished"):
         result = study.run(10, seed=1, progress=False)
     assert result.interrupted and result.completed == 3 and result.requested == 10
     assert (result.summary["replications"] == 3).all()
     assert "interrupted" in result.caveats
-    monkeypatch.setattr(study_module, "replicate", real)
+    monkeypatch.setattr(replication, "replicate", real)
     full = study.run(3, seed=1, progress=False)
     pd.testing.assert_frame_equal(result.summary, full.summary, check_exact=True)
 
@@ -250,7 +249,7 @@ def test_ctrl_c_before_two_replications_finish_goes_on(monkeypatch):
     def interrupted(*args):
         raise KeyboardInterrupt
 
-    monkeypatch.setattr(study_module, "replicate", interrupted)
+    monkeypatch.setattr(replication, "replicate", interrupted)
     study = small_study(arms=[ms.CustomerSide(0.5)], metric=["bookings"])
     with pytest.raises(KeyboardInterrupt):
         study.run(10, seed=1, progress=False)
@@ -271,7 +270,7 @@ def test_ctrl_c_with_workers_cancels_the_rest(monkeypatch):
         def close(self):
             pass
 
-    monkeypatch.setattr(study_module, "progress_bar", Bar)
+    monkeypatch.setattr(backends, "_progress_bar", Bar)
     study = small_study(arms=[ms.CustomerSide(0.5)], metric=["bookings"])
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")

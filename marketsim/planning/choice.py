@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import os
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -90,6 +91,9 @@ def choose_design(
     seed: SeedLike = None,
     workers: int = 1,
     progress: bool = True,
+    backend: str = "local",
+    client: object = None,
+    store: str | os.PathLike | None = None,
 ) -> DesignChoice:
     """Compare designs and treated fractions by their RMSE at the planned horizon.
 
@@ -104,8 +108,8 @@ def choose_design(
         Default :func:`default_candidates`: customer-side and listing-side at
         25%, 50% and 75% treated, two-sided 50/50 and two-sided following balance.
     metric : {"bookings", "revenue", "conversion"}
-    replications, seed, workers, progress
-        As for :meth:`Study.run`.
+    replications, seed, workers, progress, backend, client, store
+        As for :meth:`Study.run` (the store holds the study of the candidates).
 
     Returns
     -------
@@ -114,7 +118,8 @@ def choose_design(
     require_market_and_treatment(market, treatment)
     arms = default_candidates() if candidates is None else list(candidates)
     study = Study(market, treatment, arms, horizon=horizon, burn_in=burn_in, metric=metric)
-    result = study.run(replications, seed=seed, workers=workers, progress=progress)
+    result = study.run(replications, seed=seed, workers=workers, progress=progress,
+                       backend=backend, client=client, store=store)
     table = result.summary.sort_values("rmse", kind="stable").reset_index(drop=True)
     mse = table["rmse"] ** 2
     table["bias_share"] = np.where(mse > 0, table["bias"] ** 2 / mse, 0.0)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import os
 from dataclasses import dataclass
 
 import numpy as np
@@ -13,8 +14,9 @@ from marketsim.designs import Design
 from marketsim.model import Market, Treatment
 from marketsim.planning.sweep import require_market_and_treatment
 from marketsim.power import detectable_standard_error, power_with_bias
-from marketsim.randomness import SeedLike, spawn
+from marketsim.randomness import SeedLike
 from marketsim.study import Arm, Study, StudyResult
+from marketsim.study.runs import run_studies
 
 
 def power_table(result: StudyResult, alpha: float = 0.05,
@@ -139,6 +141,9 @@ def plan_horizon(
     seed: SeedLike = None,
     workers: int = 1,
     progress: bool = True,
+    backend: str = "local",
+    client: object = None,
+    store: str | os.PathLike | None = None,
     time_unit: str = "time unit",
 ) -> HorizonPlan:
     """Recommend the horizon at which an arm's estimators reach a target.
@@ -173,8 +178,9 @@ def plan_horizon(
         Replications of each pilot study.
     check_factor : float
         The second pilot horizon is ``check_factor * pilot_horizon``, > 1.
-    seed, workers, progress
-        As for :meth:`Study.run`.
+    seed, workers, progress, backend, client, store
+        As for :meth:`Study.run`; the pilots get the children of ``seed`` with
+        spawn keys 0 and 1 and run together (one store holds both).
     time_unit : str
         Name of the market's time unit, used in the plan's report.
 
@@ -214,15 +220,14 @@ def plan_horizon(
         goal = check.number("target_rmse", target_rmse, low=0.0, low_open=True)
         target_text = f"RMSE {goal:.4g} (bias included)"
     arm = arm if isinstance(arm, Arm) else Arm(arm)
-    first, second = spawn(seed, 2)
-    runs = []
-    for horizon, child in ((pilot, first), (pilot * factor, second)):
-        study = Study(market, treatment, [arm], horizon=horizon, burn_in=burn_in,
-                      metric=metric)
-        run = study.run(replications, seed=child, workers=workers, progress=progress)
-        if run.interrupted:
-            raise KeyboardInterrupt("plan_horizon stopped: a plan needs both pilot studies")
-        runs.append(run)
+    pilots = [Study(market, treatment, [arm], horizon=horizon, burn_in=burn_in, metric=metric)
+              for horizon in (pilot, pilot * factor)]
+    runs, interrupted = run_studies(
+        pilots, replications, seed, kind="horizon plan", split=True, backend=backend,
+        workers=workers, client=client, store=store, progress=progress, desc="pilots")
+    if interrupted:
+        kept = f" (what finished is kept in {str(store)!r})" if store is not None else ""
+        raise KeyboardInterrupt(f"plan_horizon stopped: a plan needs both pilot studies{kept}")
     short, long = runs[0].summary, runs[1].summary
     log_ratio = math.log(factor)
     rows, notes = [], []

@@ -3,12 +3,12 @@
 from __future__ import annotations
 
 import math
+import os
 import warnings
 from collections.abc import Callable, Sequence
 
 import numpy as np
 import pandas as pd
-from tqdm import tqdm
 
 from marketsim import _validation as check
 from marketsim import meanfield
@@ -18,8 +18,10 @@ from marketsim.designs import (
 )
 from marketsim.estimators import METRICS
 from marketsim.model import Market, Treatment
-from marketsim.randomness import SeedLike, spawn
+from marketsim.randomness import SeedLike
 from marketsim.study import Arm, Study, StudyResult
+from marketsim.study.runs import run_studies
+from marketsim.study.store import describe
 
 ArmLike = Arm | Design | Callable[[float], Design]
 """An arm, a design, or a callable ``balance -> Design`` (e.g. ``ms.TwoSided.for_balance``)."""
@@ -49,6 +51,9 @@ def sweep(
     seed: SeedLike = None,
     workers: int = 1,
     progress: bool = True,
+    backend: str = "local",
+    client: object = None,
+    store: str | os.PathLike | None = None,
 ) -> pd.DataFrame:
     """Bias, standard deviation and RMSE of each arm over a range of one market parameter.
 
@@ -78,10 +83,15 @@ def sweep(
         and reports Monte Carlo standard errors.
     metric : {"bookings", "revenue", "conversion"}
     horizon, burn_in, replications, seed, workers
-        Passed to the study at each point (simulation mode); the points get
-        independent seeds from ``seed``.
+        Passed to the study at each point (simulation mode); point ``k`` gets
+        the child of ``seed`` with spawn key ``k``.
     progress : bool
-        Progress bar over the points (simulation mode).
+        Progress bar over the replications of every point (simulation mode).
+    backend, client, store
+        As for :meth:`Study.run` (simulation mode): every replication of every
+        point is one task, so the points share the workers or the cluster, and
+        a store holds every point (``StudyResult.from_store(store, study=k)``
+        reads point ``k``).
 
     Returns
     -------
@@ -110,6 +120,11 @@ def sweep(
     arm_likes = _arm_likes(arms)
     markets = [vary(market, value) for value in points]
     if mode == "large-market":
+        if store is not None or backend != "local" or client is not None:
+            raise ValueError(
+                "mode 'large-market' simulates nothing: backend, client and store are for "
+                f"mode 'simulation', got backend={backend!r}, client={client!r}, "
+                f"store={store!r}")
         frames = [_large_market_point(at, treatment, arm_likes, metric) for at in markets]
     else:
         if horizon is None or replications is None:
@@ -117,10 +132,16 @@ def sweep(
                 "mode 'simulation' needs horizon and replications, got "
                 f"horizon={horizon!r}, replications={replications!r}"
             )
-        frames = _simulate_points(markets, treatment, arm_likes, horizon, burn_in, metric,
-                                  replications, seed, workers, progress)
+        studies = [Study(at, treatment, [_arm_at(a, at) for a in arm_likes],
+                         horizon=horizon, burn_in=burn_in, metric=metric) for at in markets]
+        frames = _simulate_points(studies, replications, seed, progress=progress,
+                                  backend=backend, workers=workers, client=client,
+                                  store=store, asked={"parameter": name,
+                                                      "values": describe(points)})
     rows = []
     for value, at, frame in zip(points, markets, frames):
+        if frame is None:  # interrupted before two replications of this point finished
+            continue
         frame = frame.copy()
         frame.insert(0, "balance", at.balance)
         frame.insert(0, "value", value)
@@ -130,30 +151,19 @@ def sweep(
     return pd.concat(rows, ignore_index=True)[columns]
 
 
-def _simulate_points(markets: list[Market], treatment: Treatment, arm_likes: list[ArmLike],
-                     horizon: float, burn_in: float, metric: str, replications: int,
-                     seed: SeedLike, workers: int, progress: bool) -> list[pd.DataFrame]:
-    """One study per point; Ctrl-C keeps the points finished (and a partial last one)."""
-    frames = []
-    points = tqdm(markets, desc="sweep", unit="point", disable=not progress)
-    for at, child in zip(points, spawn(seed, len(markets))):
-        study = Study(at, treatment, [_arm_at(a, at) for a in arm_likes],
-                      horizon=horizon, burn_in=burn_in, metric=metric)
-        try:
-            result = study.run(replications, seed=child, workers=workers, progress=False)
-        except KeyboardInterrupt:  # fewer than two replications of this point finished
-            result = None
-        if result is not None:
-            frames.append(_simulation_point(result))
-        if result is None or result.interrupted:
-            if not frames:
-                raise KeyboardInterrupt
-            warnings.warn(
-                f"sweep interrupted: returning {len(frames)} of {len(markets)} points (see "
-                "the replications column: the last point may have fewer)",
-                RuntimeWarning, stacklevel=3,
-            )
-            break
+def _simulate_points(studies: list[Study], replications: int, seed: SeedLike,
+                     **options) -> list[pd.DataFrame | None]:
+    """One study per point, run together; Ctrl-C keeps what finished (with a warning)."""
+    results, interrupted = run_studies(studies, replications, seed, kind="sweep",
+                                       split=True, desc="sweep", **options)
+    frames = [None if r is None else _simulation_point(r) for r in results]
+    if interrupted:
+        kept = sum(frame is not None for frame in frames)
+        if kept == 0:
+            raise KeyboardInterrupt
+        warnings.warn(
+            f"sweep interrupted: returning {kept} of {len(studies)} points (see the "
+            "replications column: some may have fewer)", RuntimeWarning, stacklevel=3)
     return frames
 
 

@@ -1,16 +1,22 @@
-"""One replication of a study (both global worlds and every arm), and how
-replications are shared out to worker processes."""
+"""One replication of a study (both global worlds and every arm) and the
+per-replication figures of many (:mod:`marketsim.study.backends` shares the
+replications out to workers)."""
 
 from __future__ import annotations
 
 import os
-import signal
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
+import pandas as pd
 
 from marketsim.engine import MarketCells, run_cells
 from marketsim.estimators import Estimator, GroupTotals, metric_rate
+
+VALUE_COLUMNS = ["estimate", "naive_se", "replication_truth", "global_control",
+                 "global_treatment", "events"]
+"""Numbers of each row of a stored chunk (besides its replication and labels)."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -81,50 +87,75 @@ def replicate(plan: Plan, root: tuple, index: int) -> Outcome:
     return Outcome(levels, estimates, errors, int(events))
 
 
-# Worker-process side ----------------------------------------------------------
-_WORKER_PLAN: Plan | None = None
+@dataclass(frozen=True, eq=False)
+class Replicated:
+    """Per-replication figures of one study, in replication order.
 
-
-def init_worker(plan: Plan) -> None:
-    """Keep the plan in the worker; let only the parent process handle Ctrl-C."""
-    global _WORKER_PLAN
-    _WORKER_PLAN = plan
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
-
-
-def run_chunk(root: tuple, indices: range) -> tuple[range, list[Outcome]]:
-    assert _WORKER_PLAN is not None
-    return indices, [replicate(_WORKER_PLAN, root, r) for r in indices]
-
-
-CHUNK_SECONDS = 0.2
-"""Largest wall time of one block of replications sent to a worker."""
-
-
-def chunks(first: int, count: int, workers: int, seconds: float) -> list[range]:
-    """Contiguous blocks of replications ``first .. count - 1`` for the workers.
-
-    Guided sizes: a block is a quarter of the work left per worker, so blocks
-    shrink towards the end and the workers finish together; and no block takes
-    much more than :data:`CHUNK_SECONDS` (judged from ``seconds``, the time of
-    one replication), so that Ctrl-C finds finished blocks and the progress bar
-    moves. The blocks never change what a replication computes.
+    Attributes
+    ----------
+    order : ndarray of int, shape (n,)
+        Replication indices.
+    levels : ndarray, shape (n, n_metrics, 2)
+        Metric in the global control and global treatment worlds.
+    estimates, errors : ndarray, shape (n, n_rows)
+        Estimate and naive standard error of each summary row.
+    events : ndarray of int, shape (n,)
+        Simulated events of the replication (all worlds and arms).
     """
-    by_time = max(1, int(CHUNK_SECONDS / max(seconds, 1e-9)))
-    blocks, start = [], first
-    while start < count:
-        size = max(1, min(by_time, (count - start) // (4 * workers)))
-        blocks.append(range(start, min(start + size, count)))
-        start += size
-    return blocks
+
+    order: np.ndarray
+    levels: np.ndarray
+    estimates: np.ndarray
+    errors: np.ndarray
+    events: np.ndarray
+
+    @classmethod
+    def of(cls, outcomes: dict) -> Replicated:
+        """From a dict ``index -> outcome`` (outcomes have levels, estimates, errors, events)."""
+        order = sorted(outcomes)
+        return cls(
+            order=np.array(order, dtype=np.int64),
+            levels=np.stack([outcomes[r].levels for r in order]),
+            estimates=np.stack([outcomes[r].estimates for r in order]),
+            errors=np.stack([outcomes[r].errors for r in order]),
+            events=np.array([outcomes[r].events for r in order], dtype=np.int64),
+        )
+
+    @classmethod
+    def from_table(cls, table: pd.DataFrame, rows: pd.DataFrame,
+                   metrics: Sequence[str]) -> Replicated:
+        """From stored rows (``n * len(rows)`` of them, replication by replication)."""
+        k_rows = len(rows)
+        n = len(table) // k_rows
+        shaped = {name: table[name].to_numpy().reshape(n, k_rows) for name in VALUE_COLUMNS}
+        first = [int(np.flatnonzero(rows["metric"].to_numpy() == m)[0]) for m in metrics]
+        levels = np.stack([shaped["global_control"][:, first],
+                           shaped["global_treatment"][:, first]], axis=2)
+        return cls(order=_order_of(table, n, k_rows), levels=levels,
+                   estimates=shaped["estimate"], errors=shaped["naive_se"],
+                   events=shaped["events"][:, 0].astype(np.int64))
+
+    def table(self, rows: pd.DataFrame, metrics: Sequence[str]) -> pd.DataFrame:
+        """The tidy per-replication table: one row per replication x summary row."""
+        n, k_rows = self.estimates.shape
+        index = {metric: m for m, metric in enumerate(metrics)}
+        by_row = [index[x] for x in rows["metric"]]
+        effects = self.levels[:, :, 1] - self.levels[:, :, 0]
+        return pd.DataFrame({
+            "replication": np.repeat(self.order, k_rows),
+            **{name: np.tile(rows[name].to_numpy(object), n)
+               for name in ("arm", "design", "estimator", "metric")},
+            "estimate": self.estimates.reshape(-1),
+            "naive_se": self.errors.reshape(-1),
+            "replication_truth": effects[:, by_row].reshape(-1),
+            "global_control": self.levels[:, by_row, 0].reshape(-1),
+            "global_treatment": self.levels[:, by_row, 1].reshape(-1),
+            "events": np.repeat(self.events, k_rows),
+        })
 
 
-def progress_bar(total: int, enabled: bool, initial: int = 0):
-    """A tqdm bar that shows up only if the run lasts more than a second."""
-    from tqdm import tqdm
-
-    return tqdm(total=total, initial=initial, disable=not enabled, unit="replication",
-                desc="study", delay=1.0, leave=False)
+def _order_of(table: pd.DataFrame, n: int, k_rows: int) -> np.ndarray:
+    return table["replication"].to_numpy().reshape(n, k_rows)[:, 0].astype(np.int64)
 
 
 def default_workers() -> int:
@@ -135,4 +166,4 @@ def default_workers() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-__all__ = ["Plan", "Outcome", "replicate", "CHUNK_SECONDS", "default_workers"]
+__all__ = ["Plan", "Outcome", "Replicated", "replicate", "default_workers"]

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import os
 from dataclasses import dataclass
 
 import numpy as np
@@ -10,7 +11,7 @@ import pandas as pd
 
 from marketsim import _validation as check
 from marketsim.power import critical_value
-from marketsim.study.replication import Outcome
+from marketsim.study.replication import VALUE_COLUMNS, Replicated
 
 Z_95 = critical_value(0.05)
 """Two-sided 95% quantile of the standard normal, ``scipy.stats.norm.ppf(0.975)``."""
@@ -28,6 +29,8 @@ SUMMARY_COLUMNS = (
     "bias", "bias_mc_se", "relative_bias", "relative_bias_mc_se", "sd", "rmse",
     "rmse_mc_se", "mean_naive_se", "coverage", "coverage_mc_se", "replications",
 )
+REPLICATION_COLUMNS = ("replication", "arm", "design", "estimator", "metric", "estimate",
+                       "naive_se", "replication_truth")
 
 
 @dataclass(frozen=True, eq=False)
@@ -110,6 +113,48 @@ class StudyResult:
                          "bias is undefined (NaN) there.")
         return " ".join(notes)
 
+    @classmethod
+    def from_store(cls, store: str | os.PathLike, study: int = 0) -> StudyResult:
+        """The result held in a results store (see ``store=`` of :meth:`Study.run`).
+
+        Parameters
+        ----------
+        store : str or path
+            Folder of a results store.
+        study : int
+            Which study of the store: 0 for a study or a design choice; the
+            point number for a sweep; 0 or 1 for the pilots of a horizon plan.
+
+        Returns
+        -------
+        StudyResult
+            Summary of the replications ``0 .. n - 1`` of the last run into the
+            store (``interrupted`` if some of them are missing), with that run's
+            wall time and workers.
+        """
+        from marketsim.study.store import open_existing
+
+        opened = open_existing(store)
+        asked = opened.question["studies"]
+        study = check.whole_number("study", study, low=0)
+        if study >= len(asked):
+            raise ValueError(f"study must be below {len(asked)} (the studies in store "
+                             f"{str(store)!r}), got {study}")
+        labels = pd.DataFrame(asked[study]["rows"],
+                              columns=["arm", "design", "estimator", "metric"])
+        metrics = tuple(asked[study]["metrics"])
+        runs = opened.manifest["runs"]
+        last = runs[-1] if runs else {"replications": 0, "elapsed": math.nan, "workers": 0}
+        requested = int(last["replications"])
+        done = sorted(i for i in opened.finished(study, len(labels)) if i < requested)
+        if len(done) < 2:
+            raise ValueError(f"store {str(store)!r} holds {len(done)} finished replications "
+                             f"of study {study}; a summary needs at least 2")
+        table = opened.read(study, done, len(labels), VALUE_COLUMNS)
+        return summarize(metrics, labels, Replicated.from_table(table, labels, metrics),
+                         requested, len(done) < requested, float(last["elapsed"]),
+                         int(last["workers"]))
+
     def to_frame(self) -> pd.DataFrame:
         """The summary table (a copy)."""
         return self.summary.copy()
@@ -160,19 +205,16 @@ class StudyResult:
         )
 
 
-def summarize(metrics: tuple[str, ...], labels: pd.DataFrame, outcomes: dict[int, Outcome],
+def summarize(metrics: tuple[str, ...], labels: pd.DataFrame, figures: Replicated,
               requested: int, interrupted: bool, elapsed: float,
               workers: int) -> StudyResult:
-    """Score the finished replications ``outcomes`` against their truths.
+    """Score the finished replications (``figures``) against their truths.
 
     ``labels`` holds the summary's rows in order (:meth:`Study.rows`).
     """
-    order = sorted(outcomes)
-    n = len(order)
-    levels = np.stack([outcomes[r].levels for r in order])        # (n, M, 2)
-    estimates = np.stack([outcomes[r].estimates for r in order])  # (n, K)
-    errors = np.stack([outcomes[r].errors for r in order])
-    events = float(np.mean([outcomes[r].events for r in order]))
+    n = figures.order.size
+    levels, estimates, errors = figures.levels, figures.estimates, figures.errors
+    events = float(np.mean(figures.events))
     effects = levels[:, :, 1] - levels[:, :, 0]                   # (n, M)
     root = math.sqrt(n)
 
@@ -196,17 +238,7 @@ def summarize(metrics: tuple[str, ...], labels: pd.DataFrame, outcomes: dict[int
         rows.append({**label._asdict(), **_score(e, s, t)})
     summary = pd.DataFrame(rows, columns=list(SUMMARY_COLUMNS))
 
-    k_rows = len(labels)
-    raw = pd.DataFrame({
-        "replication": np.repeat(np.array(order, dtype=np.int64), k_rows),
-        "arm": np.tile(labels["arm"].to_numpy(object), n),
-        "design": np.tile(labels["design"].to_numpy(object), n),
-        "estimator": np.tile(labels["estimator"].to_numpy(object), n),
-        "metric": np.tile(labels["metric"].to_numpy(object), n),
-        "estimate": estimates.reshape(-1),
-        "naive_se": errors.reshape(-1),
-        "replication_truth": effects[:, [metric_index[x] for x in labels["metric"]]].reshape(-1),
-    })
+    raw = figures.table(labels, metrics)[list(REPLICATION_COLUMNS)]
     return StudyResult(truth=truth, summary=summary, replications=raw, completed=n,
                        requested=requested, interrupted=interrupted,
                        events_per_replication=events, elapsed=elapsed, workers=workers)

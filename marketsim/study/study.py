@@ -2,11 +2,9 @@
 
 from __future__ import annotations
 
-import multiprocessing
-import time
+import os
 import warnings
 from collections.abc import Sequence
-from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 
 import numpy as np
 import pandas as pd
@@ -16,22 +14,12 @@ from marketsim.designs import Design, GlobalControl, GlobalTreatment
 from marketsim.engine import START_OPTIONS, MarketCells, build_cells
 from marketsim.estimators import METRICS, Estimator
 from marketsim.model import Market, Treatment
-from marketsim.randomness import SeedLike, seed_sequence
+from marketsim.randomness import SeedLike
 from marketsim.study.arms import Arm, arm_list
-from marketsim.study.replication import (
-    Outcome,
-    Plan,
-    chunks,
-    init_worker,
-    progress_bar,
-    replicate,
-    run_chunk,
-)
-from marketsim.study.result import StudyResult, summarize
+from marketsim.study.replication import Plan
+from marketsim.study.result import StudyResult
+from marketsim.study.runs import run_studies
 from marketsim.study.single_run import starting_availability
-
-_MP_CONTEXT: str | None = None
-"""Start method of worker processes (None: the platform default). Tests set "spawn"."""
 
 
 class Study:
@@ -143,12 +131,21 @@ class Study:
             columns=["arm", "design", "estimator", "metric"],
         )
 
+    @property
+    def plan(self) -> Plan:
+        """Everything one replication needs (built once; sent to workers)."""
+        return self._plan
+
     def run(
         self,
         replications: int,
         seed: SeedLike = None,
         workers: int = 1,
         progress: bool = True,
+        *,
+        backend: str = "local",
+        client: object = None,
+        store: str | os.PathLike | None = None,
     ) -> StudyResult:
         """Run the replications and summarize them.
 
@@ -157,11 +154,23 @@ class Study:
         replications : int
             Number of independent replications, >= 2.
         seed : int, SeedSequence, Generator or None
-            Same seed, same result, whatever ``workers`` is.
+            Same seed, same result, whatever ``workers`` or ``backend`` is.
+            ``None``: fresh entropy, or the seed of ``store`` if it exists.
         workers : int
-            Worker processes (>= 1); 1 runs in this process.
+            Worker processes of the local backend (>= 1); 1 runs in this process.
         progress : bool
             Show a progress bar (it appears only after a second of running).
+        backend : {"local", "dask"}
+            Where replications run: this machine, or a Dask cluster (``client``).
+        client : dask.distributed.Client or str, optional
+            With ``backend="dask"``: a client, or the scheduler's address
+            (``"tcp://host:8786"``). Every worker needs this version of marketsim.
+        store : str or path, optional
+            A results store folder: every finished chunk of replications is
+            written there (Parquet, see :mod:`marketsim.study.store`), and a run
+            into a store that already holds some replications of this study
+            runs only the missing ones. A store made for another study or seed
+            is refused.
 
         Returns
         -------
@@ -169,86 +178,37 @@ class Study:
 
         Notes
         -----
+        Replication ``r`` depends only on the seed and ``r``, so tables are
+        identical whatever the backend, workers, chunking or interruptions.
+
         Ctrl-C (``KeyboardInterrupt``) stops the run: pending work is cancelled
         and the result of the replications already finished is returned with a
         warning (at least 2 must have finished; otherwise the interrupt goes on).
+        With a store, they are kept there too, and the next run resumes.
 
-        With ``workers > 1`` the market, designs and estimators are sent to worker
-        processes, so they must pickle. Where workers start by "spawn" (macOS and
-        Windows), a custom design or estimator must be importable from a module:
-        a class defined in a notebook cell works with ``workers=1`` only.
+        A worker process that dies (killed, out of memory) costs only the chunk
+        it was running: it runs again on fresh workers (at most
+        :data:`marketsim.study.backends.MAX_RETRIES` times), with a warning.
+
+        With ``workers > 1`` or Dask the market, designs and estimators are sent
+        to other processes, so they must pickle. Where workers start by "spawn"
+        (macOS and Windows), a custom design or estimator must be importable from
+        a module: a class defined in a notebook cell works with ``workers=1`` only.
         """
-        count = check.whole_number("replications", replications, low=2)
-        workers = check.whole_number("workers", workers, low=1)
-        if not isinstance(progress, bool):
-            raise ValueError(f"progress must be True or False, got {progress!r}")
-        root_seed = seed_sequence(seed)
-        root = (root_seed.entropy, tuple(root_seed.spawn_key), root_seed.pool_size)
-        outcomes: dict[int, Outcome] = {}
-        began = time.perf_counter()
-        interrupted = False
-        workers = min(workers, count)
-        try:
-            if workers == 1:
-                self._run_here(root, count, outcomes, progress)
-            else:
-                self._run_workers(root, count, workers, outcomes, progress)
-        except KeyboardInterrupt:
-            interrupted = True
-            if len(outcomes) < 2:
-                raise
+        results, interrupted = run_studies(
+            [self], replications, seed, kind="study", split=False, backend=backend,
+            workers=workers, client=client, store=store, progress=progress)
+        result = results[0]
+        if interrupted:
+            if result is None:
+                raise KeyboardInterrupt
             warnings.warn(
-                f"study interrupted: {len(outcomes)} of {count} replications finished; "
-                "returning the summary of those (wider Monte Carlo errors)",
+                f"study interrupted: {result.completed} of {result.requested} replications "
+                "finished; returning the summary of those (wider Monte Carlo errors)"
+                + (f"; they are kept in {str(store)!r}" if store is not None else ""),
                 RuntimeWarning, stacklevel=2,
             )
-        elapsed = time.perf_counter() - began
-        return summarize(self.metrics, self.rows(), outcomes, count, interrupted, elapsed,
-                         workers)
-
-    def _run_here(self, root: tuple, count: int, outcomes: dict, progress: bool) -> None:
-        bar = progress_bar(count, progress)
-        try:
-            for index in range(count):
-                outcomes[index] = replicate(self._plan, root, index)
-                bar.update(1)
-        finally:
-            bar.close()
-
-    def _run_workers(self, root: tuple, count: int, workers: int, outcomes: dict,
-                     progress: bool) -> None:
-        context = multiprocessing.get_context(_MP_CONTEXT)
-        executor = ProcessPoolExecutor(max_workers=workers, mp_context=context,
-                                       initializer=init_worker, initargs=(self._plan,))
-        pending: set = set()
-        bar = None
-        clean = False
-        try:
-            began = time.perf_counter()  # one replication here, to size the blocks
-            outcomes[0] = replicate(self._plan, root, 0)
-            blocks = chunks(1, count, workers, time.perf_counter() - began)
-            pending = {executor.submit(run_chunk, root, block) for block in blocks}
-            bar = progress_bar(count, progress, initial=1)  # after the workers start
-            while pending:
-                done, pending = wait(pending, return_when=FIRST_COMPLETED)
-                for future in done:
-                    indices, results = future.result()
-                    outcomes.update(zip(indices, results))
-                    bar.update(len(indices))
-            clean = True
-        finally:
-            if bar is not None:
-                bar.close()
-            if clean:
-                executor.shutdown(wait=True)
-            else:
-                for future in pending:
-                    future.cancel()
-                for future in pending:  # finished while we were being interrupted
-                    if future.done() and not future.cancelled() and not future.exception():
-                        indices, results = future.result()
-                        outcomes.update(zip(indices, results))
-                _stop(executor)
+        return result
 
     def __repr__(self) -> str:
         arms = "; ".join(repr(a) for a in self.arms)
@@ -257,17 +217,6 @@ class Study:
             f"horizon={self.horizon:g}, burn_in={self.burn_in:g}, "
             f"metrics={list(self.metrics)})"
         )
-
-
-def _stop(executor: ProcessPoolExecutor) -> None:
-    """Cancel queued work and end the worker processes this study started."""
-    started = dict(getattr(executor, "_processes", None) or {})
-    executor.shutdown(wait=False, cancel_futures=True)
-    for process in started.values():
-        if process.is_alive():
-            process.terminate()
-    for process in started.values():
-        process.join(timeout=5)
 
 
 def _metrics(metric: object, market: Market) -> tuple[str, ...]:

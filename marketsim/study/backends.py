@@ -1,0 +1,338 @@
+"""Where replications run: this process, local worker processes, or a Dask cluster.
+
+Every replication is a task that depends only on its study's plan, the study's
+root seed and its own index (replication ``r`` is seeded by the spawn key
+``r``), so any subset can run anywhere, in any order and any number of times
+with identical results. Tasks go out in chunks of consecutive replications,
+sized so that one chunk takes about :data:`CHUNK_SECONDS`: long enough that
+scheduling costs little per replication, short enough that progress moves and
+an interrupted or lost chunk costs little.
+
+A worker that dies (killed, out of memory) loses only the chunks it held:
+they run again on a fresh pool (local) or another worker (Dask), at most
+:data:`MAX_RETRIES` times, with a warning.
+"""
+
+from __future__ import annotations
+
+import multiprocessing
+import signal
+import time
+import warnings
+from collections.abc import Callable, Sequence
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from concurrent.futures.process import BrokenProcessPool
+from dataclasses import dataclass
+
+from marketsim.study.store import package_version
+
+BACKENDS = ("local", "dask")
+
+CHUNK_SECONDS = 0.5
+"""Target wall time of one chunk of replications."""
+
+MAX_RETRIES = 3
+"""Times the chunks of a dead worker are run again before the run gives up."""
+
+MP_CONTEXT: str | None = None
+"""Start method of local worker processes (None: the platform default). Tests set "spawn"."""
+
+Chunk = tuple[int, range]
+"""(study number, consecutive replication indices)."""
+
+Deliver = Callable[[int, range, list], None]
+
+
+@dataclass(frozen=True)
+class Work:
+    """Replications to run, for one or more studies.
+
+    Attributes
+    ----------
+    replicate : callable
+        Module-level function ``(plan, root, index) -> outcome`` (it must pickle
+        by reference).
+    plans : tuple
+        One plan per study (picklable).
+    roots : tuple
+        One root seed per study, as ``(entropy, spawn_key, pool_size)``.
+    todo : tuple of tuple of int
+        Per study, the replication indices still to run (sorted).
+    """
+
+    replicate: Callable
+    plans: tuple
+    roots: tuple
+    todo: tuple[tuple[int, ...], ...]
+
+    @property
+    def total(self) -> int:
+        return sum(len(indices) for indices in self.todo)
+
+
+def run(work: Work, deliver: Deliver, *, backend: str = "local", workers: int = 1,
+        client: object = None, progress: bool = True, desc: str = "study") -> int:
+    """Run every replication of ``work``, calling ``deliver(study, indices, outcomes)``
+    in this process as each chunk finishes; return the number of workers used
+    (Dask: the cluster's threads).
+
+    Raises
+    ------
+    KeyboardInterrupt
+        After stopping the workers; every chunk finished before was delivered.
+    RuntimeError
+        If the chunks of dead workers keep failing after :data:`MAX_RETRIES` retries.
+    """
+    if work.total == 0:
+        return workers
+    job = next(j for j, indices in enumerate(work.todo) if indices)
+    first = work.todo[job][0]
+    began = time.perf_counter()  # one replication here, to size the chunks
+    deliver(job, range(first, first + 1),
+            [work.replicate(work.plans[job], work.roots[job], first)])
+    seconds = time.perf_counter() - began
+    todo = list(work.todo)
+    todo[job] = todo[job][1:]
+    owned = None
+    try:
+        if backend == "dask":
+            client, owned = dask_client(client)
+            workers = max(1, sum(w["nthreads"] for w in _workers(client).values()))
+        chunks = make_chunks(todo, workers, seconds)
+        bar = _progress_bar(work.total, progress, desc, initial=1)
+        try:
+            if backend == "dask":
+                _run_dask(work, chunks, client, bar, deliver)
+            elif workers == 1:
+                _run_here(work, chunks, bar, deliver)
+            else:
+                _run_pool(work, chunks, workers, bar, deliver)
+        finally:
+            bar.close()
+        return workers
+    finally:
+        if owned is not None:
+            owned.close()
+
+
+def make_chunks(todo: Sequence[Sequence[int]], workers: int, seconds: float) -> list[Chunk]:
+    """Chunks of consecutive indices covering ``todo``.
+
+    Guided sizes: a chunk is at most a quarter of the work left per worker, so
+    chunks shrink towards the end and the workers finish together, and at most
+    :data:`CHUNK_SECONDS` long (judged from ``seconds``, the time of one
+    replication). Chunks never change what a replication computes.
+    """
+    by_time = max(1, int(CHUNK_SECONDS / max(seconds, 1e-9)))
+    left = sum(len(indices) for indices in todo)
+    chunks = []
+    for job, indices in enumerate(todo):
+        for run_start, run_stop in _runs(indices):
+            start = run_start
+            while start < run_stop:
+                size = max(1, min(by_time, run_stop - start, left // (4 * workers)))
+                chunks.append((job, range(start, start + size)))
+                start += size
+                left -= size
+    return chunks
+
+
+def _runs(indices: Sequence[int]) -> list[tuple[int, int]]:
+    """Maximal runs ``[start, stop)`` of consecutive values of sorted ``indices``."""
+    runs: list[tuple[int, int]] = []
+    for index in indices:
+        if runs and runs[-1][1] == index:
+            runs[-1] = (runs[-1][0], index + 1)
+        else:
+            runs.append((index, index + 1))
+    return runs
+
+
+def _progress_bar(total: int, enabled: bool, desc: str, initial: int = 0):
+    """A tqdm bar that shows up only if the run lasts more than a second."""
+    from tqdm import tqdm
+
+    return tqdm(total=total, initial=initial, disable=not enabled, unit="replication",
+                desc=desc, delay=1.0, leave=False)
+
+
+# --------------------------------------------------------------------------- this process
+def _run_here(work: Work, chunks: list[Chunk], bar, deliver: Deliver) -> None:
+    for job, indices in chunks:
+        outcomes = []
+        try:
+            for index in indices:
+                outcomes.append(work.replicate(work.plans[job], work.roots[job], index))
+                bar.update(1)
+        finally:  # on Ctrl-C too: keep the replications of this chunk that finished
+            if outcomes:
+                deliver(job, range(indices.start, indices.start + len(outcomes)), outcomes)
+
+
+# --------------------------------------------------------------------------- local processes
+_WORKER_WORK: Work | None = None
+
+
+def _init_worker(work: Work) -> None:
+    """Keep the work in the worker; let only the parent process handle Ctrl-C."""
+    global _WORKER_WORK
+    _WORKER_WORK = work
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+def _pool_chunk(job: int, indices: range) -> list:
+    work = _WORKER_WORK
+    assert work is not None
+    return [work.replicate(work.plans[job], work.roots[job], r) for r in indices]
+
+
+def _run_pool(work: Work, chunks: list[Chunk], workers: int, bar, deliver: Deliver) -> None:
+    """Run on local worker processes; a broken pool is replaced and its chunks rerun."""
+    context = multiprocessing.get_context(MP_CONTEXT)
+    slim = Work(work.replicate, work.plans, work.roots, ())
+    left = list(chunks)
+    for attempt in range(MAX_RETRIES + 1):
+        executor = ProcessPoolExecutor(max_workers=workers, mp_context=context,
+                                       initializer=_init_worker, initargs=(slim,))
+        pending = {executor.submit(_pool_chunk, *chunk): chunk for chunk in left}
+        broken = False
+        clean = False
+        try:
+            while pending:
+                done, _ = wait(pending, return_when=FIRST_COMPLETED)
+                for future in done:
+                    chunk = pending.pop(future)
+                    try:
+                        outcomes = future.result()
+                    except BrokenProcessPool:
+                        broken = True
+                        continue
+                    deliver(*chunk, outcomes)
+                    left.remove(chunk)
+                    bar.update(len(chunk[1]))
+            clean = True
+        finally:
+            if clean and not broken:
+                executor.shutdown(wait=True)
+            else:
+                _stop(executor)
+        if not broken:
+            return
+        lost = ", ".join(_describe(chunk) for chunk in left[:4]) + (
+            ", ..." if len(left) > 4 else "")
+        if attempt == MAX_RETRIES:
+            raise RuntimeError(
+                f"worker processes kept dying ({MAX_RETRIES + 1} times; killed or out of "
+                f"memory?): gave up on {len(left)} chunks ({lost}); the chunks that "
+                "finished were kept")
+        warnings.warn(
+            f"a worker process died (killed or out of memory): {len(left)} unfinished chunks "
+            f"({lost}) run again on fresh workers (retry {attempt + 1} of {MAX_RETRIES}); "
+            "results are unaffected", RuntimeWarning, stacklevel=4)
+
+
+def _describe(chunk: Chunk) -> str:
+    job, indices = chunk
+    return f"study {job} replications {indices.start}-{indices.stop - 1}"
+
+
+def _stop(executor: ProcessPoolExecutor) -> None:
+    """Cancel queued work and end the worker processes this run started."""
+    started = dict(getattr(executor, "_processes", None) or {})
+    executor.shutdown(wait=False, cancel_futures=True)
+    for process in started.values():
+        if process.is_alive():
+            process.terminate()
+    for process in started.values():
+        process.join(timeout=5)
+
+
+# --------------------------------------------------------------------------- dask
+def dask_client(client: object) -> tuple[object, object]:
+    """``(client, owned)``: a ``dask.distributed.Client`` for ``client`` (a Client or
+    a scheduler address); ``owned`` is the client made here (to close), or None."""
+    try:
+        from distributed import Client
+    except ImportError:
+        raise ValueError("backend 'dask' needs dask.distributed: pip install "
+                         "'marketsim[dask]'") from None
+    if isinstance(client, Client):
+        return client, None
+    if isinstance(client, str) and client.strip():
+        try:
+            made = Client(client, timeout=30)
+        except OSError as error:
+            raise ValueError(f"client must be a dask.distributed Client or the address of a "
+                             f"running scheduler, got {client!r}: {error}") from None
+        return made, made
+    raise ValueError("backend 'dask' needs client= a dask.distributed Client or a scheduler "
+                     f"address such as 'tcp://10.0.0.5:8786', got {client!r}")
+
+
+def _workers(client) -> dict:
+    return client.scheduler_info(n_workers=-1)["workers"]
+
+
+def _dask_chunk(replicate: Callable, plan: object, root: tuple, indices: range) -> list:
+    return [replicate(plan, root, r) for r in indices]
+
+
+def _run_dask(work: Work, chunks: list[Chunk], client, bar, deliver: Deliver) -> None:
+    """Run on a Dask cluster: one task per chunk, results gathered as they complete."""
+    from distributed import KilledWorker, as_completed
+
+    _check_versions(client)
+    plans = [client.scatter(plan, broadcast=True, hash=False) for plan in work.plans]
+    known = set(_workers(client))
+    gone: set[str] = set()
+
+    def submit(chunk: Chunk):
+        job, indices = chunk
+        return client.submit(_dask_chunk, work.replicate, plans[job], work.roots[job], indices,
+                             pure=False)
+
+    pending = {submit(chunk): (chunk, 0) for chunk in chunks}
+    finished = as_completed(list(pending))
+    try:
+        for future in finished:
+            chunk, attempt = pending.pop(future)
+            try:
+                outcomes = future.result()
+            except KilledWorker as error:
+                if attempt == MAX_RETRIES:
+                    raise RuntimeError(f"{_describe(chunk)} killed its Dask workers "
+                                       f"{MAX_RETRIES + 1} times; gave up: {error}") from None
+                warnings.warn(f"{_describe(chunk)} was on Dask workers that died; it runs "
+                              f"again (retry {attempt + 1} of {MAX_RETRIES}); results are "
+                              "unaffected", RuntimeWarning, stacklevel=4)
+                again = submit(chunk)
+                pending[again] = (chunk, attempt + 1)
+                finished.add(again)
+                continue
+            deliver(*chunk, outcomes)
+            bar.update(len(chunk[1]))
+            now = set(_workers(client))
+            left = known - now - gone
+            if left:
+                gone |= left
+                warnings.warn(
+                    f"Dask worker(s) {', '.join(sorted(left))} left the cluster during the run "
+                    "(killed, out of memory or stopped); the scheduler runs their unfinished "
+                    "chunks elsewhere; results are unaffected", RuntimeWarning, stacklevel=4)
+            known |= now
+    finally:
+        if pending:
+            client.cancel(list(pending))
+        for plan in plans:
+            plan.release()
+
+
+def _check_versions(client) -> None:
+    """Refuse workers whose marketsim differs from this process's (results would too)."""
+    mine = package_version()
+    versions = client.run(package_version)
+    other = {address: v for address, v in versions.items() if v != mine}
+    if other:
+        shown = ", ".join(f"{a}: {v}" for a, v in sorted(other.items())[:3])
+        raise ValueError(f"client: every Dask worker needs marketsim {mine} (this process), "
+                         f"found {shown}")
