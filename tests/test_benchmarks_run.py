@@ -15,6 +15,8 @@ BENCHMARKS = Path(__file__).resolve().parent.parent / "benchmarks"
     ("study_workers.py", ["--replications", "4", "--events", "2e4", "--repeats", "1"],
      "speed-up:"),
     ("meanfield_speed.py", ["--repeats", "3"], "Balance sweep, 60 points"),
+    ("logging_cost.py", ["--horizon", "100", "--repeats", "1"], "logging on / off ratio"),
+    ("calibration_speed.py", ["--sessions", "2e4"], "calibrate:"),
 ])
 def test_benchmark_script_runs(script, arguments, expected):
     done = subprocess.run([sys.executable, str(BENCHMARKS / script), *arguments],

@@ -223,6 +223,9 @@ def test_fit_checks_speak_plain_words(round_trip_log):
     log = round_trip_log
     fit = calibrate(log.sessions, log.stays, log.listings, log.impressions)
     frame = fit.checks.to_frame()
+    # the logs come from the model itself: no booking rate may be flagged (each
+    # flag needs |z| > 3.5; four pairs give a false alarm with probability < 0.2%)
+    assert not frame[frame.check == "booking rate"].flagged.any(), fit.checks.text()
     assert set(frame.check) == {"booking rate", "exponential busy times",
                                 "stationary arrivals"}
     assert "booking rate" in fit.checks.text()
@@ -310,3 +313,23 @@ def test_log_folder_round_trip(tmp_path, round_trip_log):
         checked = check_log(**tables)
         assert checked.session_time.size == len(small.sessions)
         assert (checked.session_booked >= 0).sum() == small.sessions.booked_listing.notna().sum()
+
+
+def test_stationarity_check_flags_a_rate_that_follows_the_hour_of_day():
+    # Sessions of an inhomogeneous Poisson process (rate 10 by night, 30 by day,
+    # thinning: Lewis & Shedler 1979) over 20 days must be flagged; a constant rate
+    # mostly not (the chi-square test has level 5%).
+    rng = np.random.default_rng(3)
+    listings = pd.DataFrame({"listing_id": [0], "listing_type": ["room"]})
+    stays = pd.DataFrame({"listing_id": [0], "start": [0.0], "end": [1.0]})
+    verdicts = {}
+    for name, day_rate in (("varying", 30.0), ("constant", 10.0)):
+        times = np.sort(rng.uniform(0, 480, rng.poisson(30 * 480)))
+        hour = times % 24
+        keep = rng.random(times.size) < np.where((hour > 8) & (hour < 20), day_rate, 10) / 30
+        sessions = pd.DataFrame({"session_id": np.arange(keep.sum()), "time": times[keep],
+                                 "customer_type": "c", "booked_listing": None})
+        from marketsim.calibration.arrivals import stationarity_test
+
+        verdicts[name] = stationarity_test(check_log(sessions, stays, listings)).flagged
+    assert verdicts == {"varying": True, "constant": False}

@@ -21,6 +21,7 @@ from marketsim.calibration.choice_without_impressions import fit_logit_given_con
 from marketsim.calibration.result import Calibration, parameter_table
 from marketsim.calibration.tables import CheckedLog, check_log
 from marketsim.model import Market
+from marketsim.randomness import SeedLike
 
 NOT_IDENTIFIED = (
     "The log has no impressions, so consideration and utility are not separately "
@@ -38,6 +39,7 @@ def calibrate(
     *,
     consideration: ArrayLike | None = None,
     window: tuple[float, float] | None = None,
+    seed: SeedLike = 0,
 ) -> Calibration:
     """Estimate a :class:`~marketsim.Market` from platform logs, with standard errors.
 
@@ -53,6 +55,9 @@ def calibrate(
         in sorted order of their names.
     window : (float, float), optional
         Observation window (default: first to last session time).
+    seed : int, SeedSequence, Generator or None
+        Seed of the simulation in the booking-rate check (default 0: the checks
+        repeat exactly).
 
     Returns
     -------
@@ -76,10 +81,11 @@ def calibrate(
     ['parameter', 'customer_type', 'listing_type', 'estimate', 'se']
     """
     log = check_log(sessions, stays, listings, impressions, window=window)
-    return calibrate_checked(log, consideration)
+    return calibrate_checked(log, consideration, seed=seed)
 
 
-def calibrate_checked(log: CheckedLog, consideration: ArrayLike | None = None) -> Calibration:
+def calibrate_checked(log: CheckedLog, consideration: ArrayLike | None = None, *,
+                      seed: SeedLike = 0) -> Calibration:
     """:func:`calibrate` on a log already checked by :func:`check_log`."""
     n_customer, n_types = len(log.customer_types), len(log.listing_types)
     counts = log.listing_counts
@@ -125,7 +131,7 @@ def calibrate_checked(log: CheckedLog, consideration: ArrayLike | None = None) -
     return Calibration(
         market=market,
         table=parameter_table(market, arrivals, busy, consideration_fit, utility),
-        checks=fit_checks(log, market, busy.mean),
+        checks=fit_checks(log, market, busy.mean, seed),
         arrivals=arrivals, busy=busy, consideration=consideration_fit, utility=utility,
         notes=tuple(notes),
     )

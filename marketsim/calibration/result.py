@@ -119,9 +119,11 @@ class Calibration:
         labels = [f"{c}\n{ell}" for c, ell in zip(bookings.customer_type,
                                                   bookings.listing_type)]
         x = np.arange(len(labels))
-        axes[0].bar(x - 0.2, bookings.logged_rate, 0.4, yerr=2 * bookings.logged_se,
+        axes[0].bar(x - 0.27, bookings.logged_rate, 0.27, yerr=2 * bookings.logged_se,
                     label="logged (2 s.e.)")
-        axes[0].bar(x + 0.2, bookings.predicted_rate, 0.4, label="large-market model")
+        axes[0].bar(x, bookings.simulated_rate, 0.27, yerr=2 * bookings.simulated_se,
+                    label="calibrated market, simulated")
+        axes[0].bar(x + 0.27, bookings.large_market_rate, 0.27, label="large-market model")
         axes[0].set_xticks(x, labels, fontsize=8)
         axes[0].set_ylabel("bookings per unit time")
         axes[0].set_title("Booking rates")

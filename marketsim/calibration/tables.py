@@ -23,6 +23,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from numba import njit
 
 from marketsim import _validation as check
 
@@ -170,8 +171,7 @@ def check_log(
             "must not repeat a listing")
     _refuse(listings, listings["listing_type"].isna().to_numpy(), "listings",
             "listing_type", "must not be missing")
-    type_names, listing_type = np.unique(listings["listing_type"].astype(str).to_numpy(),
-                                         return_inverse=True)
+    type_names, listing_type = _names(listings["listing_type"])
     listing_treated = _flags(listings, "listings")
     price = None
     if "price" in listings:
@@ -240,8 +240,7 @@ def check_log(
         set_aside["impressions of sessions outside the window"] = int((~keep).sum())
         impression_session = kept[impression_session[keep]]
         impression_listing = impression_listing[keep]
-    customer_names, customer = np.unique(sessions["customer_type"].astype(str).to_numpy(),
-                                         return_inverse=True)
+    customer_names, customer = _names(sessions["customer_type"])
     return CheckedLog(
         listing_types=tuple(str(n) for n in type_names),
         customer_types=tuple(str(n) for n in customer_names),
@@ -294,26 +293,31 @@ def _impressions(impressions, session_index, listing_index, time, stay_listing, 
 def _busy_at(stay_listing, start, end, listing, time) -> np.ndarray:
     """Whether each (listing, time) query falls strictly inside a stay of that listing.
 
-    Stays and queries are merged in (listing, time) order, queries before stays at
-    equal times (a stay that starts at the session's own time is its booking); the
-    last stay started before each query is the only one that can cover it, since
-    stays of one listing do not overlap.
+    Stays are sorted by (listing, start); since stays of one listing do not overlap,
+    the last stay of the listing that started strictly before the query is the only
+    one that can cover it (a stay starting at the query's own time is that session's
+    booking). Found by binary search within the listing's stays.
     """
-    n_stays = stay_listing.size
-    keys_listing = np.concatenate([stay_listing, listing])
-    keys_time = np.concatenate([start, time])
-    is_stay = np.r_[np.ones(n_stays, dtype=bool), np.zeros(listing.size, dtype=bool)]
-    order = np.lexsort((is_stay, keys_time, keys_listing))
-    last_stay = np.maximum.accumulate(np.where(is_stay[order], order, -1))
-    queries = ~is_stay[order]
-    candidate = last_stay[queries]
-    query = order[queries] - n_stays
-    result = np.zeros(listing.size, dtype=bool)
-    found = candidate >= 0
-    stay = candidate[found]
-    result[query[found]] = (stay_listing[stay] == listing[query[found]]) & (
-        end[stay] > time[query[found]])
+    order = np.lexsort((start, stay_listing))
+    n_listings = int(max(stay_listing.max(initial=-1), listing.max(initial=-1))) + 1
+    first = np.searchsorted(stay_listing[order], np.arange(n_listings + 1))
+    result = np.zeros(listing.size, dtype=np.bool_)
+    _covered(start[order], end[order], first, listing, time, result)
     return result
+
+
+@njit(cache=True)
+def _covered(start, end, first, listing, time, result):  # pragma: no cover (numba)
+    for q in range(listing.size):
+        lo, hi = first[listing[q]], first[listing[q] + 1]
+        while lo < hi:  # first stay of the listing starting at or after the query
+            middle = (lo + hi) // 2
+            if start[middle] < time[q]:
+                lo = middle + 1
+            else:
+                hi = middle
+        stay = lo - 1
+        result[q] = stay >= first[listing[q]] and end[stay] > time[q]
 
 
 def _check_columns(name: str, frame: object) -> None:
@@ -346,10 +350,23 @@ def _flags(frame: pd.DataFrame, name: str) -> np.ndarray | None:
     if "treated" not in frame:
         return None
     values = frame["treated"]
+    if values.dtype == bool:
+        return values.to_numpy()
     text = values.astype(str).str.lower()
     ok = text.isin(["true", "false", "1", "0"]).to_numpy()
     _refuse(frame, ~ok, name, "treated", "must be true or false")
     return text.isin(["true", "1"]).to_numpy()
+
+
+def _names(values: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Sorted distinct names (as text) and each row's position among them (hashing, not
+    sorting, the rows)."""
+    codes, uniques = pd.factorize(values.astype(str) if values.dtype.kind != "O" else values)
+    names = np.asarray([str(u) for u in uniques])
+    order = np.argsort(names)
+    rank = np.empty_like(order)
+    rank[order] = np.arange(order.size)
+    return names[order], rank[codes]
 
 
 def _codes(index: pd.Index, values) -> np.ndarray:
