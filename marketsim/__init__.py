@@ -11,7 +11,7 @@ planning -> report -> cli.
 """
 
 from marketsim import calibration, meanfield
-from marketsim.calibration import Calibration, calibrate
+from marketsim.calibration import Calibration, ExperimentAnalysis, analyze, calibrate
 from marketsim.designs import (
     CellSplit,
     CustomerSide,
@@ -61,6 +61,8 @@ __all__ = [
     "simulate_log",
     "calibrate",
     "Calibration",
+    "analyze",
+    "ExperimentAnalysis",
     "calibration",
     "Ledger",
     "scenarios",

@@ -9,8 +9,10 @@ plausible markets for robust planning, and analyses an experiment that was run.
 May import: the shared helpers, model, designs, engine, estimators, meanfield.
 """
 
+from marketsim.calibration.experiment import ExperimentAnalysis, analyze
 from marketsim.calibration.fit import calibrate
 from marketsim.calibration.result import Calibration
 from marketsim.calibration.tables import CheckedLog, check_log, read_log_folder
 
-__all__ = ["calibrate", "Calibration", "check_log", "CheckedLog", "read_log_folder"]
+__all__ = ["calibrate", "Calibration", "analyze", "ExperimentAnalysis", "check_log", "CheckedLog",
+           "read_log_folder"]
