@@ -31,7 +31,7 @@ from marketsim.estimators import (
     TwoSidedCorrected,
     TwoSidedNaive,
 )
-from marketsim.model import Market, Treatment, scenarios
+from marketsim.model import DemandProfile, Market, Treatment, busy_time, scenarios
 from marketsim.planning import (
     DesignChoice,
     HorizonPlan,
@@ -47,6 +47,8 @@ __version__ = "0.1.0"
 __all__ = [
     "Market",
     "Treatment",
+    "DemandProfile",
+    "busy_time",
     "Design",
     "CellSplit",
     "GlobalControl",

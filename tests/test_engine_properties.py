@@ -1,11 +1,13 @@
 """Properties every run must have, on randomly generated valid markets.
 
 Hypothesis draws markets (1-3 types on each side, small counts, any
-consideration in [0, 1], utilities and outside utilities in [-5, 5]), designs
+consideration in [0, 1], utilities and outside utilities in [-5, 5], busy times
+of every shape, flat demand or a profile over a period), designs
 (global control and treatment, customer-side, listing-side, two-sided, and
 two-sided following balance) and treatments whose consideration factor keeps
 consideration <= 1. These are invariants of the chain's bookkeeping, not
-statistical checks, so they must hold for every draw.
+statistical checks, so they must hold for every draw, in both engines (the
+chain for exponential busy times, the general engine for the other shapes).
 """
 
 from __future__ import annotations
@@ -15,8 +17,23 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 import marketsim as ms
+from marketsim.engine import run_cells
 
 FRACTION = st.floats(0.01, 0.99)
+SHAPES = st.one_of(
+    st.just(ms.busy_time.Exponential()),
+    st.just(ms.busy_time.Fixed()),
+    st.builds(ms.busy_time.Gamma, st.floats(0.05, 10.0)),
+    st.builds(ms.busy_time.LogNormal, st.floats(0.05, 10.0)),
+    st.builds(ms.busy_time.Empirical, st.lists(st.floats(0.0, 10.0), min_size=2,
+                                               max_size=5).filter(lambda x: sum(x) > 0)),
+)
+PROFILES = st.one_of(
+    st.none(),
+    st.builds(ms.DemandProfile,
+              st.lists(st.floats(0.0, 5.0), min_size=1, max_size=6).filter(any),
+              st.floats(0.1, 30.0)),
+)
 
 
 @st.composite
@@ -39,9 +56,12 @@ def markets(draw) -> ms.Market:
     outside = draw(st.lists(st.floats(-5.0, 5.0), min_size=n_customer, max_size=n_customer))
     balance = draw(st.floats(0.05, 5.0))
     capacity = float(np.sum(np.array(counts) / np.array(busy)))
+    shapes = draw(st.one_of(st.none(), SHAPES,
+                            st.lists(SHAPES, min_size=n_listing, max_size=n_listing)))
     return ms.Market(listing_counts=counts, mean_busy_time=busy,
                      arrival_rate=balance * capacity, customer_shares=shares,
-                     consideration=consideration, utility=utility, outside_utility=outside)
+                     consideration=consideration, utility=utility, outside_utility=outside,
+                     busy_time=shapes, demand=draw(PROFILES))
 
 
 @st.composite
@@ -120,6 +140,8 @@ def test_bookkeeping_invariants(run):
     # a listing cell a customer cell never considers is never booked by it
     assert np.all(ledger.bookings[cells.consideration == 0.0] == 0)
     assert ledger.events >= ledger.arrivals.sum()
+    assert ledger.engine == ("chain" if run["market"].has_exponential_busy_times
+                             else "general")
 
     if run["burn_in"] == 0.0:
         # from a full start every event is recorded: a cell's net loss of available
@@ -169,3 +191,34 @@ def test_null_treatment_matches_global_control(market, seed):
     for name in ("bookings", "arrivals", "mean_available", "final_available"):
         np.testing.assert_array_equal(getattr(control, name), getattr(treated, name),
                                       err_msg=name)
+
+
+@settings(max_examples=60, deadline=None)
+@given(runs(), st.integers(1, 50), st.sampled_from(["auto", "general"]))
+def test_ledger_does_not_depend_on_slice_size(run, slice_events, engine):
+    """A run cut into slices of any size gives the ledger of one uncut run (the
+    kernels keep their whole state in arrays between slices)."""
+    cells = ms.build_cells(run["market"], run["treatment"], run["design"])
+    ledgers = [run_cells(cells, horizon=run["horizon"], burn_in=run["burn_in"],
+                         bins=run["bins"], seed=run["seed"], engine=engine,
+                         slice_events=size) for size in (slice_events, 10**9)]
+    for name in LEDGER_ARRAYS:
+        np.testing.assert_array_equal(getattr(ledgers[0], name), getattr(ledgers[1], name),
+                                      err_msg=name)
+    assert ledgers[0].events == ledgers[1].events
+
+
+def test_slices_call_the_hook_and_resume():
+    """``on_slice`` sees the run after every slice but the last, with time and
+    events growing; the ledger equals the uncut one."""
+    market = ms.scenarios.rehearsal_rooms().replace(busy_time=ms.busy_time.LogNormal(2.0))
+    cells = ms.build_cells(market)
+    seen = []
+    sliced = run_cells(cells, horizon=20.0, seed=3, slice_events=100, on_slice=seen.append)
+    whole = run_cells(cells, horizon=20.0, seed=3)
+    np.testing.assert_array_equal(sliced.bookings, whole.bookings)
+    assert len(seen) == sliced.events // 100
+    assert all(p.engine == "general" and p.end == 20.0 for p in seen)
+    assert np.all(np.diff([p.time for p in seen]) > 0)
+    assert [p.events for p in seen] == [100 * (k + 1) for k in range(len(seen))]
+    assert 0.0 < seen[0].fraction < seen[-1].fraction <= 1.0

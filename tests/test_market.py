@@ -365,16 +365,17 @@ def test_summary_frame():
     m = market()
     table = m.summary()
     assert isinstance(table, pd.DataFrame)
-    assert table.shape == (4, 8)
+    assert table.shape == (4, 9)
     assert list(table.columns) == [
         "customer_type", "listing_type", "customer_share", "outside_utility",
-        "listing_count", "mean_busy_time", "consideration", "utility",
+        "listing_count", "mean_busy_time", "busy_time", "consideration", "utility",
     ]
+    assert set(table.busy_time) == {"exponential"}
     row = table[(table.customer_type == "customer type 1")
                 & (table.listing_type == "listing type 0")].iloc[0]
     assert row.consideration == 0.3 and row.utility == -0.5 and row.listing_count == 3
     priced = market(price=[5.0, 8.0]).summary()
-    assert priced.shape == (4, 9) and priced.columns[-1] == "price"
+    assert priced.shape == (4, 10) and priced.columns[-1] == "price"
 
 
 def test_market_is_immutable():

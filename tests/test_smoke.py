@@ -50,12 +50,36 @@ def test_template_round_trips_and_runs_as_a_report(capsys, tmp_path):
     (lambda d: d["treatment"].update(utility_shift="big"),
      "treatment.utility_shift must be a finite number"),
     (lambda d: d.update(name=""), "name must be a non-empty string, got ''"),
+    (lambda d: d["market"].update(busy_time={"family": "lognormal", "cv": 0}),
+     "market.busy_time: lognormal cv must be a finite number in (0, 10] (use Fixed() for "
+     "cv 0), got 0"),
+    (lambda d: d["market"].update(busy_time=[{"family": "fixed"}, {"family": "weibull"}]),
+     "market.busy_time[1].family must be one of 'exponential', 'gamma'"),
+    (lambda d: d["market"].update(busy_time=[{"family": "empirical", "stays": [2.0]}] * 2),
+     "market.busy_time[0]: empirical stays must hold at least 2 values, got 1"),
+    (lambda d: d["market"].update(demand={"multipliers": [0, 0], "period": 24}),
+     "market.demand: multipliers must not all be 0"),
+    (lambda d: d["market"].update(demand={"multipliers": [1, 2], "period": 24, "phase": 1}),
+     "market.demand takes the keys multipliers, period, piece_length, starts, got 'phase'"),
 ])
 def test_scenario_file_errors_name_the_key(change, message):
     data = rehearsal_rooms_scenario().to_dict()
     change(data)
-    with pytest.raises(ValueError, match=message.replace(".", r"\.")):
+    with pytest.raises(ValueError, match=re.escape(message)):
         scenario_from_dict(data)
+
+
+def test_scenario_file_keeps_busy_times_and_demand():
+    data = rehearsal_rooms_scenario().to_dict()
+    data["market"]["busy_time"] = [{"family": "lognormal", "cv": 2.0},
+                                   {"family": "empirical", "stays": [1.0, 2.0, 4.0]}]
+    data["market"]["demand"] = {"multipliers": [1, 1, 2, 4], "period": 24.0}
+    scenario = scenario_from_dict(data)
+    again = scenario_from_dict(json.loads(scenario.to_json()))
+    assert [b.describe() for b in again.market.busy_time] == [
+        "lognormal (cv 2)", "empirical (3 stays, cv 0.535)"]
+    assert again.market.demand.multipliers.tolist() == [0.5, 0.5, 1.0, 2.0]
+    assert "busy_time" not in rehearsal_rooms_scenario().to_dict()["market"]
 
 
 def test_report_command_rejects_a_missing_file(capsys, tmp_path):

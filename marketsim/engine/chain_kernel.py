@@ -1,7 +1,9 @@
 """Numba kernel of the exact continuous-time Markov chain (private).
 
-Plain arrays in, preallocated arrays out; every check happens in
-:mod:`marketsim.engine.runner` before the kernel is called.
+Plain arrays in, preallocated arrays out; every check happens in the Python
+runner before the kernel is called. The steps shared with the general engine
+(arrival times under a demand profile, the choice race, the bookkeeping of the
+measurement window) live here and are imported by it.
 
 The choice step is exact and costs one uniform per listing cell whatever the
 number of listings. Multinomial-logit choice among the considered listings and
@@ -15,12 +17,31 @@ the cell is considered). Exponential draws (numpy's ziggurat) are cheaper than
 the logarithm of a uniform. A cheap lower bound on each cell's time skips the
 logarithms of cells that cannot beat the fastest clock so far, which changes
 no outcome.
+
+**Slices.** A kernel call simulates at most ``max_events`` events and returns;
+its whole state lives in arrays (``available``, ``clock``, ``counters``,
+``last_change`` and, for the general engine, the heap), and the random
+generators keep their own state, so the next call resumes exactly where the
+last one stopped: the same seed gives the same ledger whatever the slice size.
+
+State arrays:
+
+- ``clock`` (float64, 2): the time of the last event and the time of the next
+  arrival (NaN before the first call).
+- ``counters`` (int64, 4): events simulated so far, then the period number and
+  the piece of the demand profile that holds the next arrival, then (general
+  engine) the number of busy listings in the heap.
+- ``last_change`` (float64, n_listing_cells): when each cell's availability
+  last changed inside the window (starts at ``burn_in``).
 """
 
 from __future__ import annotations
 
 import numpy as np
 from numba import njit
+
+EVENTS, PERIOD, PIECE, BUSY = 0, 1, 2, 3
+"""Positions in the ``counters`` state array."""
 
 
 @njit(cache=True, error_model="numpy")
@@ -46,17 +67,104 @@ def _cell_race_time(e: float, k: int, a: float, w: float, best: float) -> float:
 
 
 @njit(cache=True, error_model="numpy")
+def _next_arrival(t, e, arrival_rate, piece_ends, multipliers, period, counters):
+    """Time of the first arrival after ``t``, given a standard exponential ``e``.
+
+    With flat demand (``piece_ends`` empty) that is ``t + e / arrival_rate``.
+    Under a demand profile the arrivals are a Poisson process of rate
+    ``arrival_rate * multipliers[piece]``; the next one is where the integrated
+    rate from ``t`` reaches ``e`` (an exact time change), found by walking the
+    pieces from the one that holds ``t`` (``counters[PERIOD]``,
+    ``counters[PIECE]``, updated in place).
+    """
+    n_pieces = piece_ends.size
+    if n_pieces == 0:
+        return t + e / arrival_rate
+    while True:
+        piece = counters[PIECE]
+        piece_end = counters[PERIOD] * period + piece_ends[piece]
+        rate = arrival_rate * multipliers[piece]
+        if rate > 0.0 and e <= rate * (piece_end - t):
+            return t + e / rate
+        if rate > 0.0 and piece_end > t:
+            e -= rate * (piece_end - t)
+        t = max(t, piece_end)
+        if piece == n_pieces - 1:
+            counters[PIECE] = 0
+            counters[PERIOD] += 1
+        else:
+            counters[PIECE] = piece + 1
+
+
+@njit(cache=True, error_model="numpy")
+def _arriving_customer(draw, share_cdf):
+    """Customer cell of an arrival from a uniform ``draw``."""
+    customer = 0
+    while customer < share_cdf.size - 1 and draw >= share_cdf[customer]:
+        customer += 1
+    return customer
+
+
+@njit(cache=True, error_model="numpy")
+def _choice(rng_choices, customer, available, outside_weight, weight, consideration):
+    """Listing cell the customer books (the closed-form race), or -1 for none."""
+    best = rng_choices.exponential() / outside_weight[customer]
+    chosen = -1
+    for cell in range(available.size):
+        race = _cell_race_time(
+            rng_choices.exponential(),
+            available[cell],
+            consideration[customer, cell],
+            weight[customer, cell],
+            best,
+        )
+        if race < best:
+            best = race
+            chosen = cell
+    return chosen
+
+
+@njit(cache=True, error_model="numpy")
+def _bin_slot(t, burn_in, bin_width, n_bins):
+    """Time bin of the window that holds ``t`` (0 when there are no bins)."""
+    if n_bins == 0:
+        return 0
+    return min(int((t - burn_in) / bin_width), n_bins - 1)
+
+
+@njit(cache=True, error_model="numpy")
+def _note_change(cell, t, available, available_time, last_change):
+    """Add the cell's availability since its last change to the window's integral."""
+    available_time[cell] += available[cell] * (t - last_change[cell])
+    last_change[cell] = t
+
+
+@njit(cache=True, error_model="numpy")
+def _close_window(end, available, available_time, last_change):
+    """Add every cell's availability from its last change to the end of the window."""
+    for cell in range(available.size):
+        _note_change(cell, end, available, available_time, last_change)
+
+
+@njit(cache=True, error_model="numpy")
 def run_chain(
     arrival_rate,
     share_cdf,
     outside_weight,
     weight,
     consideration,
+    piece_ends,
+    multipliers,
+    period,
     count,
     release_rate,
     available,
+    clock,
+    counters,
+    last_change,
     burn_in,
     end,
+    max_events,
     rng_arrivals,
     rng_choices,
     rng_releases,
@@ -66,23 +174,27 @@ def run_chain(
     bin_bookings,
     bin_arrivals,
 ):
-    """Simulate the chain on ``[0, end)`` and record what happens in ``[burn_in, end)``.
+    """Simulate at most ``max_events`` events of the chain, up to ``end``.
 
-    ``available`` (int64, per listing cell) is the starting state and holds the
-    final state on return. ``bookings`` (customer cells x listing cells),
+    Records what happens in ``[burn_in, end)``. ``available`` (int64, per
+    listing cell) and the state arrays (module notes) hold the state and are
+    updated in place. ``bookings`` (customer cells x listing cells),
     ``arrivals`` (customer cells), ``available_time`` (listing cells, the time
     integral of availability over the window) and the per-bin arrays (shape
-    (n_bins, ...); n_bins may be 0) are incremented in place. Returns the number
-    of events simulated, burn-in included.
+    (n_bins, ...); n_bins may be 0) are incremented in place. Returns True when
+    the run has reached ``end`` (and the window is closed).
     """
-    n_customer, n_listing = weight.shape
+    n_listing = count.size
     n_bins = bin_arrivals.shape[0]
     bin_width = (end - burn_in) / n_bins if n_bins > 0 else 1.0
-    last_change = np.full(n_listing, burn_in)
-    t = 0.0
-    events = 0
-    next_arrival = rng_arrivals.exponential() / arrival_rate
-    while True:
+    t = clock[0]
+    if np.isnan(clock[1]):
+        clock[1] = _next_arrival(t, rng_arrivals.exponential(), arrival_rate, piece_ends,
+                                 multipliers, period, counters)
+    next_arrival = clock[1]
+    done = 0
+    finished = False
+    while done < max_events:
         busy_rate = 0.0
         for cell in range(n_listing):
             busy_rate += release_rate[cell] * (count[cell] - available[cell])
@@ -92,31 +204,17 @@ def run_chain(
         is_arrival = next_arrival <= next_release
         t = next_arrival if is_arrival else next_release
         if t >= end:
+            finished = True
             break
-        events += 1
+        done += 1
         in_window = t >= burn_in
-        slot = 0
-        if in_window and n_bins > 0:
-            slot = min(int((t - burn_in) / bin_width), n_bins - 1)
+        slot = _bin_slot(t, burn_in, bin_width, n_bins) if in_window else 0
         if is_arrival:
-            next_arrival = t + rng_arrivals.exponential() / arrival_rate
-            draw = rng_arrivals.random()
-            customer = 0
-            while customer < n_customer - 1 and draw >= share_cdf[customer]:
-                customer += 1
-            best = rng_choices.exponential() / outside_weight[customer]
-            chosen = -1
-            for cell in range(n_listing):
-                race = _cell_race_time(
-                    rng_choices.exponential(),
-                    available[cell],
-                    consideration[customer, cell],
-                    weight[customer, cell],
-                    best,
-                )
-                if race < best:
-                    best = race
-                    chosen = cell
+            next_arrival = _next_arrival(t, rng_arrivals.exponential(), arrival_rate,
+                                         piece_ends, multipliers, period, counters)
+            customer = _arriving_customer(rng_arrivals.random(), share_cdf)
+            chosen = _choice(rng_choices, customer, available, outside_weight, weight,
+                             consideration)
             if in_window:
                 arrivals[customer] += 1
                 if n_bins > 0:
@@ -126,8 +224,7 @@ def run_chain(
                     bookings[customer, chosen] += 1
                     if n_bins > 0:
                         bin_bookings[slot, customer, chosen] += 1
-                    available_time[chosen] += available[chosen] * (t - last_change[chosen])
-                    last_change[chosen] = t
+                    _note_change(chosen, t, available, available_time, last_change)
                 available[chosen] -= 1
         else:
             target = rng_releases.random() * busy_rate
@@ -141,9 +238,13 @@ def run_chain(
                     if target < cumulative:
                         break
             if in_window:
-                available_time[cell] += available[cell] * (t - last_change[cell])
-                last_change[cell] = t
+                _note_change(cell, t, available, available_time, last_change)
             available[cell] += 1
-    for cell in range(n_listing):
-        available_time[cell] += available[cell] * (end - last_change[cell])
-    return events
+    counters[EVENTS] += done
+    clock[1] = next_arrival
+    if finished:
+        clock[0] = end
+        _close_window(end, available, available_time, last_change)
+    else:
+        clock[0] = t
+    return finished

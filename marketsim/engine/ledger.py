@@ -36,6 +36,11 @@ class Ledger:
         when no bins were asked for.
     bin_bookings : ndarray, shape (n_bins, n_customer_cells, n_listing_cells)
     bin_arrivals : ndarray, shape (n_bins, n_customer_cells)
+    engine : str
+        What produced the counts: ``"chain"`` (the count-based Markov chain,
+        exponential busy times), ``"general"`` (the event-by-event engine with
+        a heap of release times, any busy-time shape) or ``"large-market"``
+        (expectations of the large-market model).
     """
 
     cells: MarketCells
@@ -48,6 +53,7 @@ class Ledger:
     bin_edges: np.ndarray
     bin_bookings: np.ndarray
     bin_arrivals: np.ndarray
+    engine: str
 
     @property
     def booking_rate(self) -> float:
@@ -93,5 +99,6 @@ class Ledger:
         return (
             f"Ledger(window={self.window:g}, arrivals={self.arrival_count:g}, "
             f"bookings={float(self.bookings.sum()):g}, booking_rate={self.booking_rate:.4g}, "
-            f"cells={self.cells.n_customer_cells}x{self.cells.n_listing_cells})"
+            f"cells={self.cells.n_customer_cells}x{self.cells.n_listing_cells}, "
+            f"engine={self.engine!r})"
         )

@@ -1,18 +1,52 @@
-"""Python front of the engine: validate once, seed the streams, call the kernel."""
+"""Python front of the engine: validate once, seed the streams, run the kernel in slices."""
 
 from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike
 
 from marketsim import _validation as check
 from marketsim.engine.cells import MarketCells
-from marketsim.engine.chain_kernel import run_chain
+from marketsim.engine.kernel_run import KernelRun
 from marketsim.engine.ledger import Ledger
 from marketsim.randomness import SeedLike, engine_streams
 
 MAX_BIN_BYTES = 2**30
 """Largest memory the per-bin counts of one run may take."""
+
+SLICE_EVENTS = 2**20
+"""Events per kernel call (about a tenth of a second): the run returns to Python
+between slices, where Ctrl-C, progress and ``on_slice`` take effect."""
+
+
+@dataclass(frozen=True)
+class SliceProgress:
+    """Where a run stands after a slice (what ``on_slice`` receives).
+
+    Attributes
+    ----------
+    time : float
+        Simulated time reached.
+    end : float
+        Time the run ends (``burn_in + horizon``).
+    events : int
+        Events simulated so far, burn-in included.
+    engine : str
+        ``"chain"`` or ``"general"``.
+    """
+
+    time: float
+    end: float
+    events: int
+    engine: str
+
+    @property
+    def fraction(self) -> float:
+        """Share of the run's simulated time done, in [0, 1]."""
+        return min(1.0, self.time / self.end)
 
 
 def run_cells(
@@ -23,15 +57,48 @@ def run_cells(
     seed: SeedLike = None,
     start: str | ArrayLike = "empty",
     bins: int | None = None,
+    engine: str = "auto",
+    slice_events: int = SLICE_EVENTS,
+    on_slice: Callable[[SliceProgress], None] | None = None,
 ) -> Ledger:
     """Simulate cells that are already built (see :func:`marketsim.simulate`).
 
-    ``start`` is ``"empty"`` (every listing available) or the available listings per
-    listing cell; the large-market warm start ``"steady"`` is resolved above the
-    engine (:func:`marketsim.study.warm_start.starting_availability`).
+    The engine is chosen from the market: the count-based Markov chain when
+    every busy time is exponential, else the general engine, which keeps each
+    busy listing's release time (``Ledger.engine`` says which). Both are exact
+    event by event and follow the market's demand profile exactly.
+
+    Parameters
+    ----------
+    cells : MarketCells
+    horizon, burn_in, seed, bins
+        As in :func:`marketsim.simulate`.
+    start : "empty" or array_like of int, shape (n_listing_cells,)
+        ``"empty"`` (every listing available) or the available listings per
+        listing cell; the large-market warm start ``"steady"`` is resolved above
+        the engine (:func:`marketsim.study.single_run.starting_availability`).
+        With general busy times, each listing busy at time 0 gets a remaining
+        busy time drawn from the equilibrium (stationary-excess) law of its
+        shape, as in a market that has run for long before time 0.
+    engine : {"auto", "chain", "general"}
+        ``"auto"`` (default) picks as above; ``"general"`` forces the general
+        engine (for comparisons; same law for exponential times, different
+        random draws); ``"chain"`` refuses busy times that are not exponential.
+    slice_events : int
+        Events per kernel call, >= 1. The result does not depend on it (same
+        seed, same ledger); between slices Python runs ``on_slice`` and sees
+        Ctrl-C.
+    on_slice : callable, optional
+        Called with a :class:`SliceProgress` after every slice that does not
+        end the run.
+
+    Returns
+    -------
+    Ledger
     """
     horizon, burn_in = check.window(horizon, burn_in)
     n_bins = 0 if bins is None else check.whole_number("bins", bins, low=1)
+    slice_events = check.whole_number("slice_events", slice_events, low=1)
     n_customer, n_listing = cells.n_customer_cells, cells.n_listing_cells
     most_bins = MAX_BIN_BYTES // (8 * n_customer * (n_listing + 1))
     if n_bins > most_bins:
@@ -40,32 +107,26 @@ def run_cells(
             f"cells; the counts per bin would need more than {MAX_BIN_BYTES // 2**30} GiB), "
             f"got {n_bins:,}"
         )
-    available = cells.starting_counts(start)
-    rng_arrivals, rng_choices, rng_releases = engine_streams(seed)
-    bookings = np.zeros((n_customer, n_listing), dtype=np.int64)
-    arrivals = np.zeros(n_customer, dtype=np.int64)
-    available_time = np.zeros(n_listing)
-    bin_bookings = np.zeros((n_bins, n_customer, n_listing), dtype=np.int64)
-    bin_arrivals = np.zeros((n_bins, n_customer), dtype=np.int64)
-    share_cdf = np.cumsum(cells.customer_share)
-    events = run_chain(
-        cells.arrival_rate, share_cdf, cells.outside_weight, cells.weight,
-        cells.consideration, cells.listing_count, cells.release_rate, available,
-        burn_in, burn_in + horizon, rng_arrivals, rng_choices, rng_releases,
-        bookings, arrivals, available_time, bin_bookings, bin_arrivals,
-    )
+    end = burn_in + horizon
+    run = KernelRun(cells, cells.starting_counts(start), burn_in=burn_in, end=end,
+                    n_bins=n_bins, streams=engine_streams(seed), engine=engine)
+    while not run.step(slice_events):
+        if on_slice is not None:
+            on_slice(SliceProgress(time=run.time, end=end, events=run.events,
+                                   engine=run.engine))
     return Ledger(
         cells=cells,
-        bookings=bookings,
-        arrivals=arrivals,
+        bookings=run.bookings,
+        arrivals=run.arrivals,
         window=horizon,
-        mean_available=available_time / horizon,
-        final_available=available,
-        events=int(events),
+        mean_available=run.available_time / horizon,
+        final_available=run.available,
+        events=run.events,
         bin_edges=np.linspace(0.0, horizon, n_bins + 1) if n_bins else np.empty(0),
-        bin_bookings=bin_bookings,
-        bin_arrivals=bin_arrivals,
+        bin_bookings=run.bin_bookings,
+        bin_arrivals=run.bin_arrivals,
+        engine=run.engine,
     )
 
 
-__all__ = ["run_cells", "MAX_BIN_BYTES"]
+__all__ = ["run_cells", "MAX_BIN_BYTES", "SLICE_EVENTS", "SliceProgress"]

@@ -181,6 +181,7 @@ def expected_ledger(state: SteadyState, window: float | None = None) -> Ledger:
         bin_edges=np.empty(0),
         bin_bookings=np.zeros((0, n_c, n_l)),
         bin_arrivals=np.zeros((0, n_c)),
+        engine="large-market",
     )
 
 

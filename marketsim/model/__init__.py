@@ -4,7 +4,9 @@ May import: only the shared helpers (_validation, randomness). Everything downst
 trusts what is built here: a Market and a Treatment are immutable and validated once.
 """
 
+from marketsim.model import busy_time
+from marketsim.model.demand import DemandProfile
 from marketsim.model.market import Market
 from marketsim.model.treatment import NO_TREATMENT, Treatment
 
-__all__ = ["Market", "Treatment", "NO_TREATMENT"]
+__all__ = ["Market", "Treatment", "NO_TREATMENT", "DemandProfile", "busy_time"]

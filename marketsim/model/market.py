@@ -14,6 +14,9 @@ import pandas as pd
 from numpy.typing import ArrayLike
 
 from marketsim import _validation as check
+from marketsim.model.busy_time import BusyTime, Exponential
+from marketsim.model.busy_time import per_listing_type as busy_time_per_type
+from marketsim.model.demand import DemandProfile, checked_profile
 
 SHARE_TOLERANCE = 1e-9
 MAX_LISTINGS = 2**53
@@ -25,9 +28,10 @@ class Market:
     """A finite two-sided market of customers and listings.
 
     Listings of type ``j`` (``listing_counts[j]`` of them) are either available or
-    busy. A booked listing stays busy for an exponential time with mean
-    ``mean_busy_time[j]``. Customers arrive as a Poisson process of rate
-    ``arrival_rate``; each is of type ``i`` with probability
+    busy. A booked listing stays busy for a time of mean ``mean_busy_time[j]``,
+    exponential unless ``busy_time`` gives another shape. Customers arrive as a
+    Poisson process of rate ``arrival_rate`` (the mean rate, when a ``demand``
+    profile makes it follow the clock); each is of type ``i`` with probability
     ``customer_shares[i]``, considers each *available* listing of type ``j``
     independently with probability ``consideration[i, j]`` and books listing ``l``
     of type ``j`` among those considered with the multinomial-logit probability
@@ -59,6 +63,15 @@ class Market:
         Distinct names of the types (default ``"listing type 0"``, ...).
     price : array_like, shape (n_listing_types,), optional
         Price of one booking of each listing type; enables the revenue metric.
+    busy_time : BusyTime or sequence of BusyTime, optional
+        Shape of the busy-time distribution (:mod:`marketsim.busy_time`): one
+        for every listing type or one per listing type; its mean is
+        ``mean_busy_time``. Default: exponential, the Markov chain. Any other
+        shape is simulated by the general engine (a heap of release times).
+    demand : DemandProfile, optional
+        Arrival-rate multipliers over a repeating period (:class:`~marketsim.DemandProfile`),
+        normalised to average 1 so that ``arrival_rate`` is the mean rate over
+        a period. Default: a constant rate.
 
     Notes
     -----
@@ -92,6 +105,8 @@ class Market:
     listing_types: tuple[str, ...]
     customer_types: tuple[str, ...]
     price: np.ndarray | None = field(default=None)
+    busy_time: tuple[BusyTime, ...] = field(default=())
+    demand: DemandProfile | None = field(default=None)
 
     def __init__(
         self,
@@ -105,6 +120,8 @@ class Market:
         listing_types: Sequence[str] | None = None,
         customer_types: Sequence[str] | None = None,
         price: ArrayLike | None = None,
+        busy_time: BusyTime | Sequence[BusyTime] | None = None,
+        demand: DemandProfile | None = None,
     ) -> None:
         counts = _listing_counts(listing_counts)
         n_listing = counts.size
@@ -150,6 +167,8 @@ class Market:
                                                  n_customer, "customer type"))
         set_(self, "price", None if price is None else check.array(
             "price", price, (n_listing,), "(n_listing_types,)", low=0.0))
+        set_(self, "busy_time", busy_time_per_type(busy_time, n_listing))
+        set_(self, "demand", checked_profile(demand))
 
     # ----------------------------------------------------------------- derived
     @property
@@ -171,6 +190,11 @@ class Market:
     def release_capacity(self) -> float:
         """Release rate if every listing were busy: ``sum_j n_j / mean_busy_time[j]``."""
         return float(np.sum(self.listing_counts / self.mean_busy_time))
+
+    @property
+    def has_exponential_busy_times(self) -> bool:
+        """True when every listing type's busy time is exponential (the Markov chain)."""
+        return all(isinstance(shape, Exponential) for shape in self.busy_time)
 
     @property
     def balance(self) -> float:
@@ -223,6 +247,8 @@ class Market:
             "listing_types": self.listing_types,
             "customer_types": self.customer_types,
             "price": self.price,
+            "busy_time": self.busy_time,
+            "demand": self.demand,
         }
         unknown = sorted(set(changes) - set(fields))
         if unknown:
@@ -240,7 +266,8 @@ class Market:
         -------
         pandas.DataFrame
             Columns ``customer_type, listing_type, customer_share, outside_utility,
-            listing_count, mean_busy_time, consideration, utility`` (and ``price``).
+            listing_count, mean_busy_time, busy_time, consideration, utility`` (and
+            ``price``); ``busy_time`` names the shape (e.g. ``"lognormal (cv 2)"``).
         """
         rows = []
         for i, customer in enumerate(self.customer_types):
@@ -252,6 +279,7 @@ class Market:
                     "outside_utility": float(self.outside_utility[i]),
                     "listing_count": int(self.listing_counts[j]),
                     "mean_busy_time": float(self.mean_busy_time[j]),
+                    "busy_time": self.busy_time[j].describe(),
                     "consideration": float(self.consideration[i, j]),
                     "utility": float(self.utility[i, j]),
                 }
@@ -268,10 +296,15 @@ class Market:
             f"{name}: {share:.3g}" for name, share in zip(self.customer_types,
                                                           self.customer_shares)
         )
+        extras = ""
+        if not self.has_exponential_busy_times:
+            extras += f", busy_time [{', '.join(b.describe() for b in self.busy_time)}]"
+        if self.demand is not None:
+            extras += f", demand {self.demand.describe()}"
         return (
             f"Market(N={self.n_listings} listings [{listings}], "
             f"arrival_rate={self.arrival_rate:.4g}, balance={self.balance:.4g}, "
-            f"customers [{customers}])"
+            f"customers [{customers}]{extras})"
         )
 
 

@@ -16,6 +16,13 @@ of :class:`marketsim.Treatment`; ``experiment`` says how long the planned test
 runs (``horizon``, in ``time_unit``), how long the simulated market warms up
 first (``burn_in``) and the smallest effect on bookings per ``time_unit`` worth
 detecting (``minimum_effect``).
+
+Two optional market keys describe markets as they are: ``busy_time``, one
+shape for every listing type or a list of one per type (``{"family":
+"lognormal", "cv": 2}``; families ``exponential``, ``gamma`` and ``lognormal``
+with ``cv``, ``fixed``, ``empirical`` with ``stays``), and ``demand``, the
+arrival rate over the day or week (``{"multipliers": [24 hourly values],
+"period": 24}``, normalised to average 1).
 """
 
 from __future__ import annotations
@@ -26,10 +33,12 @@ from pathlib import Path
 
 from marketsim import _validation as check
 from marketsim.model import Market, Treatment
+from marketsim.model import busy_time as busy_time_shapes
+from marketsim.model.demand import DemandProfile
 
 MARKET_KEYS = ("listing_counts", "mean_busy_time", "arrival_rate", "customer_shares",
                "consideration", "utility", "outside_utility", "listing_types",
-               "customer_types", "price")
+               "customer_types", "price", "busy_time", "demand")
 TREATMENT_KEYS = ("utility_shift", "consideration_factor", "outside_utility_shift")
 EXPERIMENT_KEYS = ("horizon", "burn_in", "minimum_effect")
 TOP_KEYS = ("name", "time_unit", "market", "treatment", "experiment")
@@ -89,6 +98,10 @@ class Scenario:
         }
         if market.price is not None:
             market_data["price"] = market.price.tolist()
+        if not market.has_exponential_busy_times:
+            market_data["busy_time"] = [shape.to_dict() for shape in market.busy_time]
+        if market.demand is not None:
+            market_data["demand"] = market.demand.to_dict()
         treatment = {
             name: _plain(getattr(self.treatment, name)) for name in TREATMENT_KEYS
         }
@@ -188,7 +201,7 @@ def scenario_from_dict(data: object) -> Scenario:
     for key in ("name", "time_unit"):
         if key in section and (not isinstance(section[key], str) or not section[key].strip()):
             raise ValueError(f"{key} must be a non-empty string, got {section[key]!r}")
-    market = _prefixed("market", lambda: Market(**market_data))
+    market = _prefixed("market", lambda: Market(**_market_arguments(market_data)))
     treatment = _prefixed("treatment", lambda: Treatment(**treatment_data))
     check_feature(market, treatment)
     return _prefixed("experiment", lambda: Scenario(
@@ -200,6 +213,26 @@ def scenario_from_dict(data: object) -> Scenario:
         minimum_effect=experiment["minimum_effect"],
         time_unit=section.get("time_unit", "time unit"),
     ))
+
+
+def _market_arguments(data: dict) -> dict:
+    """The market section with ``busy_time`` and ``demand`` read into their classes.
+
+    ``busy_time`` is one shape object (``{"family": "lognormal", "cv": 2}``) for
+    every listing type or a list of one per listing type; ``demand`` is a
+    profile object (``{"multipliers": [...], "period": 24}``).
+    """
+    arguments = dict(data)
+    if "busy_time" in data:
+        value = data["busy_time"]
+        if isinstance(value, list):
+            arguments["busy_time"] = [busy_time_shapes.from_dict(item, f"busy_time[{k}]")
+                                      for k, item in enumerate(value)]
+        else:
+            arguments["busy_time"] = busy_time_shapes.from_dict(value)
+    if "demand" in data:
+        arguments["demand"] = DemandProfile.from_dict(data["demand"])
+    return arguments
 
 
 def _section(data: object, name: str, allowed: tuple[str, ...],

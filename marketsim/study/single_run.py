@@ -31,9 +31,15 @@ def simulate(
 ) -> Ledger:
     """Simulate the finite market exactly and record the measurement window.
 
-    The market is a continuous-time Markov chain whose state is the number of
-    available listings per listing cell; the simulation is exact (no time
-    steps) and its cost per event does not depend on the number of listings.
+    With exponential busy times the market is a continuous-time Markov chain
+    whose state is the number of available listings per listing cell; the
+    simulation is exact (no time steps) and its cost per event does not depend
+    on the number of listings. With any other busy-time shape
+    (``Market(busy_time=...)``) the general engine also keeps each busy
+    listing's release time (a heap: cost per event grows like ``log N``), still
+    exact event by event. A demand profile (``Market(demand=...)``) is followed
+    exactly by both; time 0 is the start of its period. ``Ledger.engine`` says
+    which engine ran.
 
     Parameters
     ----------
@@ -61,7 +67,15 @@ def simulate(
         by simulation); from ``"steady"`` the mean over replications is within
         Monte Carlo error (about 1.5%) of the long-run value from the first
         quarter hour, at 40, 400 and 4,000 listings, so a burn-in of half a
-        mean busy time is plenty.
+        mean busy time is plenty. With busy times that are not exponential,
+        ``"steady"`` still takes the large-market steady state for the counts
+        (it depends on the busy times only through their means: at a steady
+        state busy listings = booking rate x mean busy time, Little's law), and
+        gives each busy listing a remaining busy time drawn from the
+        equilibrium (stationary-excess) law of its shape, as a listing found
+        busy at a random moment has; explicit counts get the same draws. Under
+        a demand profile the steady state is that of the mean arrival rate, not
+        of the cycle's start: keep a burn-in of at least one period.
     bins : int, optional
         Also count bookings and arrivals in this many equal time bins of the window.
 

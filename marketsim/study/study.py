@@ -44,7 +44,9 @@ class Study:
     start : {"empty", "steady"}
         Availability at time 0 of every run: every listing available, or the
         large-market steady state of each world rounded to whole listings (a
-        warm start that shortens the burn-in needed; see :func:`marketsim.simulate`).
+        warm start that shortens the burn-in needed; with busy times that are
+        not exponential, busy listings start with remaining times drawn from
+        the equilibrium law; see :func:`marketsim.simulate`).
 
     Notes
     -----
@@ -52,6 +54,12 @@ class Study:
     experiments (same horizon, burn-in and starting state), so a short burn-in
     affects truth and estimates alike. Everything is checked here, before any
     simulation: the arms, that each estimator fits its design, the metrics.
+
+    Markets with any busy-time shape or a demand profile run as they are (the
+    engine is chosen per market). Under a demand profile, the truth and the
+    estimates describe the window simulated: give ``burn_in`` and ``horizon``
+    in whole periods (for a daily profile in hours, multiples of 24) so that
+    they average over whole days, as the global treatment effect does.
 
     Examples
     --------
