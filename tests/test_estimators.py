@@ -44,7 +44,7 @@ def ledger_of(design: ms.Design, bookings, arrivals, the_market=None) -> ms.Ledg
                                                                                   np.int64),
                      events=0, bin_edges=np.empty(0),
                      bin_bookings=np.zeros((0, *bookings.shape), np.int64),
-                     bin_arrivals=np.zeros((0, arrivals.size), np.int64))
+                     bin_arrivals=np.zeros((0, arrivals.size), np.int64), engine="chain")
 
 
 @pytest.fixture

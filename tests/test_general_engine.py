@@ -126,3 +126,15 @@ def test_general_engine_agrees_with_a_plain_simpy_model():
                         seed=seed).booking_rate for seed in seeds[:count]]
     flat_mean, flat_se = mean_and_se(np.array(flat))
     assert abs(flat_mean - m1[:2].sum()) > Z * np.hypot(flat_se, se[:2].sum())
+
+
+def test_logged_runs_refuse_what_the_logging_kernel_cannot_simulate():
+    """The logging kernel has exponential stays and flat demand only: say so."""
+    from marketsim.study import simulate_log
+
+    market = ms.scenarios.rehearsal_rooms()
+    for variant in (market.replace(busy_time=ms.busy_time.Fixed()),
+                    market.replace(demand=ms.DemandProfile([1.0, 2.0], period=24.0))):
+        with pytest.raises(ValueError, match="market must have exponential busy times and "
+                                             "a constant arrival rate for logged runs"):
+            simulate_log(variant, horizon=10.0, seed=1)

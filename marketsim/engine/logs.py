@@ -89,11 +89,18 @@ def run_logged_cells(cells: MarketCells, *, horizon: float, burn_in: float = 0.0
     Raises
     ------
     ValueError
-        If the window or the start is invalid.
+        If the window or the start is invalid, or the market has busy times that are
+        not exponential or a demand profile.
     """
     horizon, burn_in = check.window(horizon, burn_in)
-    available = cells.starting_counts(start)
     market, split = cells.market, cells.split
+    if not market.has_exponential_busy_times or market.demand is not None:
+        raise ValueError(
+            "market must have exponential busy times and a constant arrival rate for logged "
+            f"runs (the logging kernel simulates only those), got busy_time "
+            f"{[b.describe() for b in market.busy_time]} and demand {market.demand!r}"
+        )
+    available = cells.starting_counts(start)
     count = cells.listing_count.astype(np.int64)
     offset = np.r_[0, np.cumsum(count)[:-1]].astype(np.int64)
     pool = np.arange(count.sum(), dtype=np.int64)
