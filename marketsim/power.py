@@ -28,16 +28,30 @@ def critical_value(alpha: float = 0.05) -> float:
 
 
 def detectable_standard_error(
-    minimum_effect: float, alpha: float = 0.05, power: float = 0.8
+    minimum_effect: float, alpha: float = 0.05, power: float = 0.8, se_ratio: float = 1.0
 ) -> float:
-    """Standard error at which an unbiased test detects ``minimum_effect`` with ``power``.
+    """Standard deviation at which an unbiased estimator's test detects ``minimum_effect``.
 
-    ``se = |minimum_effect| / (z_{1-alpha/2} + z_{power})``.
+    ``sd = |minimum_effect| / (z_{1-alpha/2} * se_ratio + z_{power})``, ignoring
+    the far tail of the wrong sign.
+
+    Parameters
+    ----------
+    minimum_effect : float
+        Effect to detect, != 0.
+    alpha, power : float
+        Two-sided significance level and power, in (0, 1).
+    se_ratio : float
+        The standard error the test divides by over the estimator's real
+        standard deviation, > 0 (1: the ideal test; the naive standard error of
+        a listing-side or two-sided estimator is often larger than the real
+        spread, so its test needs a smaller spread for the same power).
     """
     effect = check.number("minimum_effect", minimum_effect)
     if effect == 0.0:
         raise ValueError("minimum_effect must be a finite number != 0, got 0.0")
-    return abs(effect) / (critical_value(alpha) + float(norm.ppf(_power(power))))
+    ratio = check.number("se_ratio", se_ratio, low=0.0, low_open=True)
+    return abs(effect) / (critical_value(alpha) * ratio + float(norm.ppf(_power(power))))
 
 
 def sample_size_per_group(
@@ -69,27 +83,41 @@ def sample_size_per_group(
 
 @dataclass(frozen=True)
 class PowerWithBias:
-    """What a test with a biased estimator will do.
+    """What a two-sided test with a biased estimator will do.
 
     Attributes
     ----------
     power : float
-        Probability that the test declares a significant effect.
+        Probability that the test declares a significant effect (either sign).
     type_s : float
-        Probability that a significant estimate has the wrong sign (NaN when
-        the true effect is 0).
+        Probability that a significant estimate has the wrong sign, given that it
+        is significant (NaN when the true effect is 0).
     type_m : float
         Expected ``|estimate| / |effect|`` among significant estimates, the
         exaggeration ratio (NaN when the true effect is 0).
+    wrong_sign : float
+        Probability that one experiment gives a significant result of the wrong
+        sign (``power * type_s``, not conditional on significance; NaN when the
+        true effect is 0).
+    overstated : float
+        Probability that one experiment gives a significant result of the right
+        sign that is more than ``overstatement`` times the true effect (NaN when
+        the true effect is 0).
+    overstatement : float
+        The factor behind ``overstated``.
     """
 
     power: float
     type_s: float
     type_m: float
+    wrong_sign: float = math.nan
+    overstated: float = math.nan
+    overstatement: float = 2.0
 
 
 def power_with_bias(
-    effect: float, bias: float, standard_error: float, alpha: float = 0.05
+    effect: float, bias: float, standard_error: float, alpha: float = 0.05, *,
+    test_standard_error: float | None = None, overstatement: float = 2.0,
 ) -> PowerWithBias:
     """Power and type S / type M errors of a two-sided z-test with a biased estimator.
 
@@ -100,9 +128,18 @@ def power_with_bias(
     bias : float
         Bias of the estimator (its expectation minus ``effect``).
     standard_error : float
-        Standard deviation of the estimator, > 0.
+        The real standard deviation of the estimator (its spread from one
+        experiment to the next), > 0.
     alpha : float
         Two-sided significance level.
+    test_standard_error : float, optional
+        The standard error the analyst's test divides by, > 0: the test is
+        significant when ``|estimate| > z_{1-alpha/2} * test_standard_error``.
+        Default ``standard_error``: the ideal test that knows the real spread.
+        Pass the reported (naive) standard error to get the test that is
+        actually run.
+    overstatement : float
+        Factor for :attr:`PowerWithBias.overstated`, > 1.
 
     Returns
     -------
@@ -110,10 +147,12 @@ def power_with_bias(
 
     Notes
     -----
-    With ``mu = effect + bias``, ``s = standard_error`` and ``c = z s``, the
-    estimate is significant when ``|X| > c`` with ``X ~ N(mu, s**2)``;
-    ``E[X; X > c] = mu (1 - Phi(a)) + s phi(a)`` with ``a = (c - mu) / s``, and
-    symmetrically below ``-c``.
+    With ``mu = effect + bias``, ``s = standard_error`` and ``c = z t`` (``t``
+    the test's standard error), the estimate is significant when ``|X| > c``
+    with ``X ~ N(mu, s**2)``; ``E[X; X > c] = mu (1 - Phi(a)) + s phi(a)`` with
+    ``a = (c - mu) / s``, and symmetrically below ``-c``. The test's standard
+    error is taken as fixed (in a study it varies a little from run to run;
+    :func:`marketsim.power_table` also reports the rejection rate observed).
 
     References
     ----------
@@ -123,16 +162,22 @@ def power_with_bias(
     effect = check.number("effect", effect)
     bias = check.number("bias", bias)
     s = check.number("standard_error", standard_error, low=0.0, low_open=True)
-    z = critical_value(alpha)
+    t = s if test_standard_error is None else check.number(
+        "test_standard_error", test_standard_error, low=0.0, low_open=True)
+    factor = check.number("overstatement", overstatement, low=1.0, low_open=True)
+    c = critical_value(alpha) * t
     mu = effect + bias
-    upper = (z * s - mu) / s
-    lower = (-z * s - mu) / s
+    upper = (c - mu) / s
+    lower = (-c - mu) / s
     p_high = float(norm.sf(upper))
     p_low = float(norm.cdf(lower))
     power = p_high + p_low
     if effect == 0.0 or power == 0.0:
-        return PowerWithBias(power, math.nan, math.nan)
+        return PowerWithBias(power, math.nan, math.nan, overstatement=factor)
     wrong = p_low if effect > 0 else p_high
     mean_high = mu * p_high + s * float(norm.pdf(upper))
     mean_low = mu * p_low - s * float(norm.pdf(lower))
-    return PowerWithBias(power, wrong / power, (mean_high - mean_low) / power / abs(effect))
+    far = max(c, factor * abs(effect))
+    overstated = float(norm.sf((far - mu) / s) if effect > 0 else norm.cdf((-far - mu) / s))
+    return PowerWithBias(power, wrong / power, (mean_high - mean_low) / power / abs(effect),
+                         wrong, overstated, factor)

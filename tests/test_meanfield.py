@@ -470,3 +470,30 @@ def test_more_errors_are_clear(call, message):
     # a TypeError, and an empty table for a design no estimator fits
     with pytest.raises(ValueError, match=re.escape(message)):
         call(ms.scenarios.rehearsal_rooms())
+
+
+def test_crossover_is_a_root_of_the_large_market_curves():
+    """The balance where customer-side and listing-side are equally biased: the two
+    absolute relative biases agree there, the better design changes sides across it, and a
+    dense grid of balances (step 0.001) (no root-finding) puts the change within one grid step."""
+    from marketsim.meanfield.crossover import crossover_balances
+
+    market = ms.scenarios.rehearsal_rooms().scaled(25)
+    feature = ms.scenarios.instant_confirmation()
+    designs = (ms.CustomerSide(0.5), ms.ListingSide(0.5))
+    (root,) = crossover_balances(market, feature, *designs)
+
+    def gap(balance):
+        at = market.with_balance(balance)
+        c, listing = (ms.meanfield.expected_estimates(at, feature, d)["relative_bias"].iloc[0]
+                      for d in designs)
+        return abs(c) - abs(listing)
+
+    assert abs(gap(root)) < 1e-4
+    assert gap(root * 0.99) < 0 < gap(root * 1.01)
+    dense = np.linspace(0.9, 1.2, 301)
+    table = ms.meanfield.sweep_balance(market, feature, list(designs), dense)
+    wide = table.pivot(index="balance", columns="design", values="relative_bias").abs()
+    worse = wide.index[wide.iloc[:, 0].to_numpy() > wide.iloc[:, 1].to_numpy()]
+    assert abs(worse.min() - root) <= dense[1] - dense[0]
+    assert 1.0 < root < 1.1  # not "about 1.3" from a coarse grid

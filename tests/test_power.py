@@ -125,3 +125,43 @@ def test_sample_size_depends_on_effect_over_sigma_only(sigma, effect, scale, pow
     assert n == pytest.approx(sample_size_per_group(scale * sigma, scale * effect,
                                                     power=power), rel=1e-9)
     assert sample_size_per_group(sigma, effect, power=min(power + 0.04, 0.99)) > n
+
+
+@pytest.mark.parametrize("effect, bias, se, test_se",
+                         [(1.0, 0.3, 0.5, 0.7), (-0.6, -0.2, 0.4, 0.3), (0.4, 0.1, 0.3, 0.45),
+                          (0.2, -0.3, 0.3, 0.25)])
+def test_real_test_and_harm_rates_against_monte_carlo(effect, bias, se, test_se):
+    """A test dividing by another standard error than the real spread, and the chances of a
+    significant wrong-sign result and of a significant result more than twice the effect,
+    against direct normal draws (numpy); tolerance 4 Monte Carlo s.e."""
+    rng = np.random.default_rng(12)
+    draws = rng.normal(effect + bias, se, size=400_000)
+    significant = np.abs(draws) > 1.959964 * test_se
+    result = power_with_bias(effect, bias, se, test_standard_error=test_se)
+
+    def close(value, rate):
+        p = max(value, rate)  # the binomial error at the larger of the two (one may be 0)
+        return abs(value - rate) < 4 * np.sqrt(p * (1 - p) / draws.size) + 1e-6
+
+    assert close(result.power, significant.mean())
+    assert close(result.wrong_sign, np.mean(significant & (np.sign(draws) != np.sign(effect))))
+    over = significant & (draws * np.sign(effect) > 2 * abs(effect))
+    assert close(result.overstated, over.mean())
+    assert result.wrong_sign == pytest.approx(result.power * result.type_s)
+    ratio = np.abs(draws[significant]) / abs(effect)
+    assert abs(result.type_m - ratio.mean()) < 4 * ratio.std() / np.sqrt(ratio.size)
+
+
+@pytest.mark.parametrize("ratio", [0.8, 1.0, 1.4])
+def test_detectable_standard_error_of_the_real_test(ratio):
+    """At sd = detectable_standard_error(m, se_ratio=r), the test |X| > 1.96 r sd of
+    X ~ N(m, sd^2) has power 0.8 up to the far tail of the wrong sign (scipy normal)."""
+    from scipy.stats import norm
+
+    sd = detectable_standard_error(0.3, se_ratio=ratio)
+    c = norm.ppf(0.975) * ratio * sd
+    power = norm.sf((c - 0.3) / sd) + norm.cdf((-c - 0.3) / sd)
+    assert power == pytest.approx(0.8, abs=2e-3)
+    assert power >= 0.8 - 1e-12
+    with pytest.raises(ValueError, match="se_ratio must be a finite number > 0"):
+        detectable_standard_error(0.3, se_ratio=0.0)

@@ -44,6 +44,7 @@ jump Markov processes", Journal of Applied Probability 7(1), 1970.
 Science 68(10), 2022: the large-market view of experiments in this model.
 """
 
+from marketsim.meanfield.crossover import crossover_balances
 from marketsim.meanfield.expected import ESTIMATE_COLUMNS, expected_estimates, sweep_balance
 from marketsim.meanfield.steady import SteadyState, expected_ledger, gte, steady_state
 from marketsim.meanfield.trajectory import Trajectory, trajectory
@@ -55,6 +56,7 @@ __all__ = [
     "expected_ledger",
     "gte",
     "expected_estimates",
+    "crossover_balances",
     "sweep_balance",
     "trajectory",
     "ESTIMATE_COLUMNS",

@@ -7,7 +7,25 @@ from collections.abc import Sequence
 
 import pandas as pd
 
+from marketsim import _validation as check
+
 REQUIRED_COLUMNS = ("design", "estimator", "balance", "relative_bias")
+
+RELATIVE_BIAS_LABEL = "relative bias (% of the true effect)"
+"""Relative bias is drawn in percent of the true effect in every figure of the package."""
+
+
+def percent_axis(axis, which: str = "y") -> None:
+    """Show relative bias (a fraction) as a percentage on one axis of ``axis``."""
+    from matplotlib.ticker import PercentFormatter
+
+    (axis.yaxis if which == "y" else axis.xaxis).set_major_formatter(PercentFormatter(xmax=1.0))
+
+
+def mark_balance(axis, balance: float, label: bool = True) -> None:
+    """A dotted vertical line at the market's own balance on a balance axis."""
+    axis.axvline(balance, color="0.35", linestyle=":", linewidth=1.4,
+                 label=f"this market (balance {balance:.3g})" if label else None)
 
 
 def plot_balance_sweep(
@@ -18,6 +36,7 @@ def plot_balance_sweep(
     ylim: tuple[float, float] | None = None,
     title: str | None = None,
     columns: int | None = None,
+    market_balance: float | None = None,
 ):
     """Relative bias of each estimator against balance (log axis), one panel per design.
 
@@ -36,12 +55,16 @@ def plot_balance_sweep(
     columns : int, optional
         Panels per row (default: all in one row up to 3 designs, 2 x 2 for 4,
         rows of 3 beyond).
+    market_balance : float, optional
+        The balance of the market being planned for, marked on every panel by a
+        dotted vertical line (and in the legend).
 
     Returns
     -------
     matplotlib.figure.Figure
-        Relative bias 0 (an unbiased estimator) is marked by a horizontal line;
-        a gap in a line means the estimator does not fit the design there.
+        Relative bias, in percent of the true effect, 0 (an unbiased estimator)
+        marked by a horizontal line; a gap in a line means the estimator does not
+        fit the design there.
 
     Examples
     --------
@@ -55,8 +78,10 @@ def plot_balance_sweep(
     2
     """
     import matplotlib.pyplot as plt
-    from matplotlib.ticker import PercentFormatter
 
+    if market_balance is not None:
+        market_balance = check.number("market_balance", market_balance, low=0.0,
+                                      low_open=True)
     if not isinstance(frame, pd.DataFrame):
         raise ValueError(
             f"frame must be a pandas.DataFrame from ms.meanfield.sweep_balance, got "
@@ -101,14 +126,16 @@ def plot_balance_sweep(
             ax.plot(grid, values.to_numpy(), marker="o", markersize=3, label=estimator,
                     color=colours[estimator])
         ax.axhline(0.0, color="black", linewidth=0.8)
+        if market_balance is not None:
+            mark_balance(ax, market_balance)
         ax.set_xscale("log")
         ax.set_title(design, fontsize="medium")
-        ax.yaxis.set_major_formatter(PercentFormatter(xmax=1.0))
+        percent_axis(ax)
         ax.grid(True, which="major", alpha=0.3)
         if k // n_cols == n_rows - 1 or k + n_cols >= n_panels:
             ax.set_xlabel("balance (arrivals / release capacity)")
         if k % n_cols == 0:
-            ax.set_ylabel("relative bias")
+            ax.set_ylabel(RELATIVE_BIAS_LABEL)
         ax.tick_params(labelbottom=True)
     for k in range(n_panels, n_rows * n_cols):
         axes[k // n_cols][k % n_cols].set_visible(False)
@@ -147,4 +174,4 @@ def _pick(name: str, chosen: Sequence[str] | None, available: list[str]) -> list
     return chosen
 
 
-__all__ = ["plot_balance_sweep"]
+__all__ = ["RELATIVE_BIAS_LABEL", "mark_balance", "percent_axis", "plot_balance_sweep"]

@@ -14,9 +14,11 @@ bias, which comes from interference, does not shrink at all: it is a floor
 under the RMSE that no amount of traffic removes.
 """
 
+from marketsim.planning.analyst_test import power_table
 from marketsim.planning.choice import DesignChoice, choose_design, default_candidates
-from marketsim.planning.horizon import HorizonPlan, plan_horizon, power_table
+from marketsim.planning.durations import readable_duration
+from marketsim.planning.horizon import HorizonPlan, plan_horizon
 from marketsim.planning.sweep import sweep
 
 __all__ = ["sweep", "plan_horizon", "HorizonPlan", "power_table", "choose_design",
-           "DesignChoice", "default_candidates"]
+           "DesignChoice", "default_candidates", "readable_duration"]

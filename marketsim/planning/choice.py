@@ -22,6 +22,12 @@ from marketsim.planning.sweep import require_market_and_treatment
 from marketsim.randomness import SeedLike
 from marketsim.study import Arm, Study, StudyResult, rmse_influence
 
+TIE_RULE = ("the candidates whose RMSE is within two paired Monte Carlo standard errors of "
+            "the smallest are practically tied; among them the one with the smallest "
+            "absolute bias is recommended, since bias does not shrink with a longer test "
+            "and noise does")
+"""The rule that breaks a practical tie, in words (printed in the report)."""
+
 
 @dataclass(frozen=True)
 class DesignChoice:
@@ -30,21 +36,40 @@ class DesignChoice:
     Attributes
     ----------
     table : pandas.DataFrame
-        One row per arm x estimator, sorted by RMSE: the study's summary columns
-        plus ``bias_share`` (the share of the mean squared error that is bias)
-        and ``rank``.
+        One row per arm x estimator, best first: the study's summary columns plus
+        ``bias_share`` (``bias**2 / rmse**2``, the share of the mean squared
+        error that is bias: near 1, a longer test will not help), ``tied``
+        (RMSE within two paired Monte Carlo standard errors of the smallest),
+        ``rmse_gap_mc_se`` (the paired Monte Carlo standard error of the row's
+        RMSE minus the smallest) and ``rank``. The practically tied rows come
+        first, ordered by absolute bias (:data:`TIE_RULE`), then the others by RMSE.
     recommended : pandas.Series
-        The row with the smallest RMSE.
+        The first row.
     notes : tuple of str
-        Whether the runner-up is within Monte Carlo error, and the caveats.
+        Whether the best candidates are practically tied, and the caveats.
     result : StudyResult
         The study behind the table.
+    arms : tuple of Arm
+        One arm per row of ``table``, in its order: the row's design with that
+        row's estimator only, named as the row's ``arm`` (ready for
+        :func:`marketsim.plan_horizon` or another study).
     """
 
     table: pd.DataFrame
     recommended: pd.Series
     notes: tuple[str, ...]
     result: StudyResult
+    arms: tuple[Arm, ...] = ()
+
+    @property
+    def recommended_arm(self) -> Arm:
+        """The recommended design with its estimator, as an :class:`~marketsim.Arm`."""
+        return self.arms[0]
+
+    @property
+    def design(self) -> Design:
+        """The recommended design object."""
+        return self.arms[0].design
 
     def to_frame(self) -> pd.DataFrame:
         """The ranked table (a copy)."""
@@ -102,8 +127,10 @@ def choose_design(
     market : Market
     treatment : Treatment
     horizon : float
-        The planned length of the experiment.
+        The planned length of the experiment: its measured window, after the
+        burn-in.
     burn_in : float
+        Warm-up simulated before the window and not measured.
     candidates : sequence of Arm or Design, optional
         Default :func:`default_candidates`: customer-side and listing-side at
         25%, 50% and 75% treated, two-sided 50/50 and two-sided following balance.
@@ -114,36 +141,78 @@ def choose_design(
     Returns
     -------
     DesignChoice
+        Its ``recommended_arm`` (and ``design``) can be passed to
+        :func:`marketsim.plan_horizon` directly, as can the choice itself.
+
+    Examples
+    --------
+    >>> import marketsim as ms
+    >>> choice = ms.choose_design(ms.scenarios.rehearsal_rooms(),
+    ...                           ms.scenarios.instant_confirmation(), horizon=20.0,
+    ...                           candidates=[ms.CustomerSide(0.5), ms.ListingSide(0.5)],
+    ...                           replications=8, seed=1, progress=False)
+    >>> isinstance(choice.design, ms.Design), len(choice.arms)
+    (True, 2)
     """
     require_market_and_treatment(market, treatment)
-    arms = default_candidates() if candidates is None else list(candidates)
+    arms = [a if isinstance(a, Arm) else Arm(a) for a in
+            (default_candidates() if candidates is None else list(candidates))]
     study = Study(market, treatment, arms, horizon=horizon, burn_in=burn_in, metric=metric)
     result = study.run(replications, seed=seed, workers=workers, progress=progress,
                        backend=backend, client=client, store=store)
+    table, notes = rank_candidates(result)
+    notes.append(result.caveats)
+    by_label = {arm.label: arm for arm in arms}
+    ranked = []
+    for row in table.itertuples(index=False):
+        arm = by_label[row.arm]
+        estimator = next(e for e in arm.resolve(market) if e.name == row.estimator)
+        ranked.append(Arm(arm.design, [estimator], name=arm.label))
+    return DesignChoice(table=table, recommended=table.iloc[0], notes=tuple(notes),
+                        result=result, arms=tuple(ranked))
+
+
+def rank_candidates(result: StudyResult) -> tuple[pd.DataFrame, list[str]]:
+    """Order a study's rows by preference at its horizon (see :class:`DesignChoice`).
+
+    Returns the ranked table and the notes on ties and bias.
+    """
     table = result.summary.sort_values("rmse", kind="stable").reset_index(drop=True)
     mse = table["rmse"] ** 2
     table["bias_share"] = np.where(mse > 0, table["bias"] ** 2 / mse, 0.0)
-    table["rank"] = np.arange(1, len(table) + 1)
     best = table.iloc[0]
+    gaps = table["rmse"] - best["rmse"]
+    errors = np.array([0.0] + [_rmse_difference_error(result, best, table.iloc[k])
+                               for k in range(1, len(table))])
+    table["tied"] = gaps <= 2.0 * errors
+    table["rmse_gap_mc_se"] = errors
+    order = np.lexsort((table["rmse"].to_numpy(), table["bias"].abs().to_numpy(),
+                        ~table["tied"].to_numpy()))
+    tied = table[table["tied"]]
+    table = table.iloc[order].reset_index(drop=True)
+    table["rank"] = np.arange(1, len(table) + 1)
+    chosen = table.iloc[0]
     notes = []
-    if len(table) > 1:
-        runner = table.iloc[1]
-        gap = runner["rmse"] - best["rmse"]
-        noise = _rmse_difference_error(result, best, runner)
-        if gap < 2.0 * noise:
-            notes.append(
-                f"The runner-up ({runner['arm']}, {runner['estimator']}) is within Monte "
-                f"Carlo error (RMSE {runner['rmse']:.3g} against {best['rmse']:.3g}, "
-                f"difference {gap:.2g}, paired Monte Carlo s.e. {noise:.2g}); more "
-                "replications would separate them."
-            )
-    if best["bias_share"] > 0.5:
+    if len(tied) > 1:
+        others = [f"{r.arm}, {r.estimator} (RMSE {r.rmse:.3g})"
+                  for r in tied.itertuples(index=False)
+                  if (r.arm, r.estimator) != (chosen["arm"], chosen["estimator"])]
+        spread = float(tied["rmse"].max() / best["rmse"] - 1.0)
+        loose = float(2.0 * tied["rmse_gap_mc_se"].max() / best["rmse"])
+        reading = ("more replications could separate them" if loose > 0.1 else
+                   "more replications would not change the decision much")
         notes.append(
-            "Most of the best RMSE is bias: a longer experiment will not help much; the "
-            "bias comes from interference between treated and control units."
+            f"Practically tied on RMSE with {'; '.join(others)}: the RMSEs differ by up to "
+            f"{spread:.0%} of the best, within two paired Monte Carlo standard errors "
+            f"(at most {loose:.0%} of it: {reading}). Tie rule: {TIE_RULE}."
         )
-    notes.append(result.caveats)
-    return DesignChoice(table=table, recommended=best, notes=tuple(notes), result=result)
+    if chosen["bias_share"] > 0.5:
+        notes.append(
+            f"{chosen['bias_share']:.0%} of the recommended candidate's mean squared error is "
+            "bias: a longer experiment will not help much; the bias comes from interference "
+            "between treated and control units."
+        )
+    return table, notes
 
 
 def _rmse_difference_error(result: StudyResult, first: pd.Series, second: pd.Series) -> float:
@@ -167,4 +236,4 @@ def _rmse_difference_error(result: StudyResult, first: pd.Series, second: pd.Ser
     return float(np.std(difference, ddof=1) / math.sqrt(difference.size))
 
 
-__all__ = ["DesignChoice", "choose_design", "default_candidates"]
+__all__ = ["TIE_RULE", "DesignChoice", "choose_design", "default_candidates", "rank_candidates"]

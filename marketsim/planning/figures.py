@@ -5,8 +5,14 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from marketsim.meanfield.figures import RELATIVE_BIAS_LABEL, mark_balance, percent_axis
 
-def plot_sweep(table: pd.DataFrame, metric: str | None = None):
+SYMLOG_BEYOND = 3.0
+"""The relative-bias panel turns logarithmic beyond +-100% once values pass +-300%."""
+
+
+def plot_sweep(table: pd.DataFrame, metric: str | None = None,
+               market_value: float | None = None):
     """Bias, noise and RMSE of each arm and estimator against the swept value.
 
     Parameters
@@ -15,14 +21,22 @@ def plot_sweep(table: pd.DataFrame, metric: str | None = None):
         The result of :func:`marketsim.sweep`.
     metric : str, optional
         Which metric to draw (default: the first in the table).
+    market_value : float, optional
+        The market's own value of the swept parameter (its balance, for a
+        balance sweep), marked on every panel by a dotted vertical line.
 
     Returns
     -------
     matplotlib.figure.Figure
         Simulation mode: bias, standard deviation and RMSE side by side, with
         +-2 Monte Carlo standard errors. Large-market mode (no noise in the
-        limit): bias and relative bias. The x axis is logarithmic when the swept
-        values are positive and span more than a factor of 10.
+        limit): bias and relative bias, in percent of the true effect. Where
+        relative bias passes +-300% (the effect itself is tiny at the extremes)
+        its axis is linear within +-100% and logarithmic beyond (matplotlib's
+        ``symlog``), so the region people work in is not flattened; the panel's
+        title says so. The x axis is logarithmic when the swept values are
+        positive and span more than a factor of 10. The legend sits below the
+        panels.
     """
     import matplotlib.pyplot as plt
     from matplotlib.ticker import NullFormatter
@@ -32,7 +46,7 @@ def plot_sweep(table: pd.DataFrame, metric: str | None = None):
     parameter = str(data["parameter"].iloc[0])
     noiseless = bool(data["sd"].isna().all())
     if noiseless:
-        panels = [("bias", None, "bias"), ("relative_bias", None, "relative bias")]
+        panels = [("bias", None, "bias"), ("relative_bias", None, RELATIVE_BIAS_LABEL)]
     else:
         panels = [("bias", "bias_mc_se", "bias"), ("sd", None, "standard deviation"),
                   ("rmse", "rmse_mc_se", "RMSE")]
@@ -51,10 +65,22 @@ def plot_sweep(table: pd.DataFrame, metric: str | None = None):
         axis.grid(alpha=0.3)
         if column in ("bias", "relative_bias"):
             axis.axhline(0.0, color="black", linewidth=0.8)
+        if column == "relative_bias":
+            percent_axis(axis)
+            if np.nanmax(np.abs(data[column].to_numpy(float))) > SYMLOG_BEYOND:
+                axis.set_yscale("symlog", linthresh=1.0)
+                percent_axis(axis)
+                axis.set_title(f"{title}\nlinear within ±100%, logarithmic beyond",
+                               fontsize="medium")
+        if market_value is not None:
+            mark_balance(axis, float(market_value), label=axis is axes[0])
         if logarithmic:
             axis.set_xscale("log")
             axis.xaxis.set_minor_formatter(NullFormatter())
     handles, labels = axes[0].get_legend_handles_labels()
+    if market_value is not None and parameter != "balance":
+        labels = [label.replace("this market (balance", f"this market ({parameter}")
+                  for label in labels]
     fig.legend(handles, labels, loc="lower center", ncol=min(3, max(1, len(labels))),
                fontsize="small", frameon=False)
     mode = "large-market limit, no noise" if noiseless else "simulation, +-2 Monte Carlo s.e."
@@ -76,21 +102,29 @@ def plot_design_choice(table: pd.DataFrame):
     -------
     matplotlib.figure.Figure
         Horizontal bars of ``|bias|`` and ``sd`` with the RMSE marked (+-2 Monte
-        Carlo s.e.); the best candidate is at the top.
+        Carlo s.e.); the recommended candidate is at the top, candidates
+        practically tied with it are labelled "(tied)"; the legend sits below
+        the axes.
     """
     import matplotlib.pyplot as plt
 
     labels = [f"{a} | {e}" for a, e in zip(table["arm"], table["estimator"])]
+    if "tied" in table:
+        labels = [f"{label}  (tied)" if tied and k else label
+                  for k, (label, tied) in enumerate(zip(labels, table["tied"]))]
+    labels[0] = f"{labels[0]}  (recommended)"
     y = np.arange(len(table))[::-1]
-    fig, axis = plt.subplots(figsize=(9, 0.45 * len(table) + 1.6))
+    fig, axis = plt.subplots(figsize=(9, 0.45 * len(table) + 2.2))
     axis.barh(y + 0.2, table["bias"].abs(), height=0.4, label="|bias| (does not shrink)")
     axis.barh(y - 0.2, table["sd"], height=0.4, label="standard deviation")
     axis.errorbar(table["rmse"], y, xerr=2.0 * table["rmse_mc_se"], fmt="D", color="black",
                   markersize=4, capsize=2, label="RMSE (+-2 Monte Carlo s.e.)")
     axis.set_yticks(y, labels, fontsize="small")
     axis.set_xlabel(f"{table['metric'].iloc[0]} (same units as the effect)")
-    axis.set_title("Design choice at the planned horizon (best at the top)")
+    axis.set_title("Design choice at the planned horizon (recommended at the top)")
     axis.grid(axis="x", alpha=0.3)
-    axis.legend(fontsize="small", loc="lower right")
+    # Below the axes, where it covers no bar.
+    axis.legend(fontsize="small", loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=3,
+                frameon=False)
     fig.tight_layout()
     return fig

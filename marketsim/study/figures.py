@@ -7,6 +7,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from marketsim import _validation as check
+from marketsim.meanfield.figures import RELATIVE_BIAS_LABEL, percent_axis
 
 if TYPE_CHECKING:  # pragma: no cover
     from matplotlib.figure import Figure
@@ -21,8 +22,8 @@ def plot_study(result: StudyResult, metric: str | None = None) -> Figure:
     """Relative bias and RMSE of every arm x estimator, with Monte Carlo error bars.
 
     Two panels side by side, one row per arm x estimator (top to bottom in the
-    order of the study): the relative bias (bias / truth; a dashed line marks
-    0) and the RMSE in the metric's units. Bars span ±2 Monte Carlo standard
+    order of the study): the relative bias (bias / truth, in percent; a dashed
+    line marks 0) and the RMSE in the metric's units. Bars span ±2 Monte Carlo standard
     errors (``relative_bias_mc_se`` and ``rmse_mc_se`` of the summary).
 
     Parameters
@@ -56,7 +57,7 @@ def plot_study(result: StudyResult, metric: str | None = None) -> Figure:
     figure, (left, right) = plt.subplots(1, 2, figsize=(11.0, height), sharey=True,
                                          layout="constrained")
     panels = (
-        (left, "relative_bias", "relative_bias_mc_se", "relative bias (bias / truth)"),
+        (left, "relative_bias", "relative_bias_mc_se", RELATIVE_BIAS_LABEL),
         (right, "rmse", "rmse_mc_se", f"RMSE ({metric})"),
     )
     arms = list(dict.fromkeys(rows["arm"]))
@@ -70,6 +71,7 @@ def plot_study(result: StudyResult, metric: str | None = None) -> Figure:
         ax.set_title(title)
         ax.grid(axis="x", alpha=0.3)
     left.axvline(0.0, linestyle="--", linewidth=1.0, color="0.4")
+    percent_axis(left, "x")
     right.set_xlim(left=0.0)
     left.set_yticks(y, labels)
     truth = result.truth.set_index("metric").loc[metric]
