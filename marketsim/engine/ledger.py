@@ -39,8 +39,9 @@ class Ledger:
     engine : str
         What produced the counts: ``"chain"`` (the count-based Markov chain,
         exponential busy times), ``"general"`` (the event-by-event engine with
-        a heap of release times, any busy-time shape) or ``"large-market"``
-        (expectations of the large-market model).
+        a heap of release times, any busy-time shape), ``"large-market"``
+        (expectations of the large-market model) or ``"none"`` (counts built by
+        hand, e.g. from platform logs; the default).
     """
 
     cells: MarketCells
@@ -53,7 +54,7 @@ class Ledger:
     bin_edges: np.ndarray
     bin_bookings: np.ndarray
     bin_arrivals: np.ndarray
-    engine: str
+    engine: str = "none"
 
     @property
     def booking_rate(self) -> float:
