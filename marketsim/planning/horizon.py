@@ -84,11 +84,11 @@ class HorizonPlan:
                 run = readable_duration(row.recommended_horizon, self.time_unit)
                 lines.append(
                     f"- {row.estimator}: run {run}, about {row.expected_arrivals:,.0f} "
-                    f"arrivals; bias floor {floor}; at the "
-                    f"true effect ({row.truth:.3g}) the analyst's test (estimate over its "
-                    f"reported standard error) has power {row.power:.2f}, a "
-                    f"{_chance(row.wrong_sign)} chance of a significant result of the wrong sign, "
-                    f"and exaggerates significant results x{row.type_m:.2f} on average."
+                    f"arrivals; bias floor {floor}. At the true effect ({row.truth:.3g}) the "
+                    "analyst's test (estimate over its reported standard error) has power "
+                    f"{row.power:.2f}; the chance of a significant result of the wrong sign is "
+                    f"{_chance(row.wrong_sign)}; significant results are x{row.type_m:.2f} "
+                    "the true effect on average."
                 )
             elif row.verdict == "unreachable":
                 lines.append(

@@ -26,6 +26,7 @@ from marketsim.model.scenario_file import Scenario
 from marketsim.planning import choose_design, default_candidates, plan_horizon, power_table
 from marketsim.randomness import SeedLike, spawn
 from marketsim.report.markdown import Report
+from marketsim.report.wording import coverage_sentence
 from marketsim.study import CAVEAT, Arm, Study, StudyResult, default_workers
 
 SWEEP_LISTINGS = 1000
@@ -111,7 +112,9 @@ def study_section(report: Report, result: StudyResult, scenario: Scenario) -> No
         "relative_bias": "{:+.0%}", "sd": "{:.3f}", "mean_naive_se": "{:.3f}",
         "rmse": "{:.3f}", "coverage": "{:.0%}"})
     report.figure(result.plot(), "study.png",
-                  "Relative bias and RMSE per design and estimator (+-2 Monte Carlo s.e.)")
+                  "Relative bias (in % of the true effect) and RMSE per design and estimator "
+                  "(+-2 Monte Carlo s.e.)")
+    report.text(coverage_sentence(result.summary))
     report.text(
         f"What the analyst's test will do over {scenario.horizon:g} {unit}s: a two-sided test "
         "at the 5% level that divides the estimate by the standard error it reports "
