@@ -35,7 +35,9 @@ from marketsim.model import DemandProfile, Market, Treatment, busy_time, scenari
 from marketsim.planning import (
     DesignChoice,
     HorizonPlan,
+    RobustDesignChoice,
     choose_design,
+    choose_design_robustly,
     plan_horizon,
     power_table,
     sweep,
@@ -82,6 +84,8 @@ __all__ = [
     "plan_horizon",
     "HorizonPlan",
     "choose_design",
+    "choose_design_robustly",
+    "RobustDesignChoice",
     "DesignChoice",
     "power_table",
 ]

@@ -18,7 +18,9 @@ from marketsim.planning.analyst_test import power_table
 from marketsim.planning.choice import DesignChoice, choose_design, default_candidates
 from marketsim.planning.durations import readable_duration
 from marketsim.planning.horizon import HorizonPlan, plan_horizon
+from marketsim.planning.robust import RobustDesignChoice, choose_design_robustly
 from marketsim.planning.sweep import sweep
 
 __all__ = ["sweep", "plan_horizon", "HorizonPlan", "power_table", "choose_design",
-           "DesignChoice", "default_candidates", "readable_duration"]
+           "DesignChoice", "default_candidates", "readable_duration", "choose_design_robustly",
+           "RobustDesignChoice"]

@@ -1,0 +1,49 @@
+"""Design choice over plausible markets (choose_design_robustly)."""
+
+import numpy as np
+import pytest
+
+import marketsim as ms
+
+CANDIDATES = [ms.CustomerSide(0.5), ms.ListingSide(0.5)]
+
+
+def test_a_choice_that_flips_with_balance_does_not_survive():
+    # Facts of the trade (DESIGN 8): customer-side randomization is nearly unbiased
+    # when demand is scarce, listing-side when supply is scarce; with a long horizon
+    # (noise small) the winner flips between balance 0.05 and 20, so over markets
+    # spread across both the recommendation cannot survive.
+    base = ms.scenarios.rehearsal_rooms()
+    markets = [base.with_balance(b) for b in (0.05, 0.06, 20.0, 25.0)]
+    choice = ms.choose_design_robustly(markets, ms.scenarios.instant_confirmation(),
+                                       horizon=1e6, candidates=CANDIDATES, confirm=1,
+                                       confirm_markets=1, replications=5, seed=1)
+    winners = choice.screen[choice.screen.wins]
+    assert dict(zip(winners.market, winners.arm)) == {
+        0: "customer-side (a_C=0.5)", 1: "customer-side (a_C=0.5)",
+        2: "listing-side (a_L=0.5)", 3: "listing-side (a_L=0.5)"}
+    assert choice.recommended["win_share"] == pytest.approx(0.5)
+    assert not choice.survives
+    assert "does NOT survive" in choice.report()
+
+
+def test_screen_bias_is_the_large_market_bias():
+    market = ms.scenarios.rehearsal_rooms()
+    treatment = ms.scenarios.instant_confirmation()
+    choice = ms.choose_design_robustly([market, market.with_balance(2.0)], treatment,
+                                       horizon=336.0, candidates=CANDIDATES, confirm=2,
+                                       confirm_markets=1, replications=20, seed=2)
+    expected = ms.meanfield.expected_estimates(market, treatment, ms.CustomerSide(0.5))
+    row = choice.screen[(choice.screen.market == 0)
+                        & (choice.screen.arm == "customer-side (a_C=0.5)")]
+    assert row.bias.iloc[0] == pytest.approx(expected.bias.iloc[0], rel=1e-9)
+    assert set(choice.confirmation.market) == {0}
+    assert len(choice.confirmation) == 2
+    assert np.isfinite(choice.summary.rmse_median).all()
+    choice.plot()
+
+
+def test_markets_must_be_a_list_of_markets():
+    with pytest.raises(ValueError, match="markets must be a list of at least 2"):
+        ms.choose_design_robustly([ms.scenarios.rehearsal_rooms()],
+                                  ms.scenarios.instant_confirmation(), horizon=10.0)
