@@ -6,6 +6,12 @@
     The same on a scenario file (see :mod:`marketsim.model.scenario_file`).
 ``marketsim scenario-template``
     Print the built-in scenario as a scenario file to start from.
+``marketsim calibrate FOLDER``
+    Calibrate a market from platform logs (listings, stays, sessions and optionally
+    impressions as .csv or .parquet files): print the parameters and fit checks and
+    write a scenario file that ``marketsim report`` accepts.
+``marketsim analyze FOLDER``
+    The estimates of an experiment that was run, from its logs (``treated`` columns).
 """
 
 from __future__ import annotations
@@ -15,8 +21,11 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
+from marketsim.calibration import analyze, calibrate, read_log_folder
+from marketsim.model import Treatment
 from marketsim.model.scenario_file import load_scenario
 from marketsim.model.scenarios import rehearsal_rooms_scenario
+from marketsim.report.calibration import analysis_text, calibrated_scenario, calibration_text
 from marketsim.report.full_report import write_full_report
 
 REPLICATIONS = 200
@@ -48,10 +57,13 @@ def main(argv: Sequence[str] | None = None) -> int:
     _run_options(report)
     commands.add_parser("scenario-template",
                         help="print the built-in scenario as a file to start from")
+    _log_commands(commands)
     args = parser.parse_args(argv)
     if args.command == "scenario-template":
         sys.stdout.write(rehearsal_rooms_scenario().to_json())
         return 0
+    if args.command in ("calibrate", "analyze"):
+        return _run_log_command(args, commands.choices[args.command])
     command = demo if args.command == "demo" else report
     if args.replications < 2:
         command.error(f"--replications must be a whole number >= 2, got {args.replications}")
@@ -75,9 +87,58 @@ def main(argv: Sequence[str] | None = None) -> int:
         print("The scenario and its numbers are invented.")
     try:
         write_full_report(scenario, replications=args.replications, seed=args.seed,
-                          out=args.out, workers=args.workers)
+                          out=args.out, workers=args.workers,
+                          calibration=args.command == "demo")
     except ValueError as error:
         # e.g. a market too small for the report's designs; the library's messages
         # name the cause, so say it as a usage error rather than a traceback
         command.error(f"the report cannot run on this scenario: {error}")
+    return 0
+
+
+def _log_commands(commands) -> None:
+    calibrate_ = commands.add_parser(
+        "calibrate", help="calibrate a market from platform logs in a folder")
+    calibrate_.add_argument("folder", help="folder with listings, stays, sessions (and "
+                            "impressions) as .csv or .parquet")
+    calibrate_.add_argument("--consideration", type=float, default=None,
+                            help="consideration probability, needed without impressions")
+    calibrate_.add_argument("--scenario", default="calibrated-scenario.json",
+                            help="scenario file to write (default ./calibrated-scenario.json)")
+    calibrate_.add_argument("--utility-shift", type=float, default=0.1,
+                            help="feature to plan for, as a utility shift (default 0.1)")
+    calibrate_.add_argument("--time-unit", default="hour", help="time unit of the logs")
+    analyze_ = commands.add_parser(
+        "analyze", help="estimates of an experiment that was run, from its logs")
+    analyze_.add_argument("folder", help="folder with the experiment's logs (treated columns)")
+    analyze_.add_argument("--baseline", default=None,
+                          help="folder of logs without the experiment to calibrate the "
+                               "market and add each estimator's expected bias")
+
+
+def _run_log_command(args, command: argparse.ArgumentParser) -> int:
+    try:
+        tables = read_log_folder(args.folder)
+        if args.command == "analyze":
+            fit = None
+            if args.baseline is not None:
+                fit = calibrate(**read_log_folder(args.baseline))
+            print(analysis_text(analyze(tables["sessions"], tables["stays"],
+                                        tables["listings"], fit)))
+            return 0
+        fit = calibrate(**tables, consideration=args.consideration)
+        print(calibration_text(fit))
+        window = fit.arrivals.counts.sum() / fit.arrivals.rate
+        scenario = calibrated_scenario(
+            fit, name=f"calibrated from {args.folder}",
+            treatment=Treatment(utility_shift=args.utility_shift),
+            horizon=float(window), burn_in=float(5 * fit.market.mean_busy_time.max()),
+            minimum_effect=float(0.05 * fit.checks.bookings.logged_rate.sum()),
+            time_unit=args.time_unit)
+        Path(args.scenario).write_text(scenario.to_json(), encoding="utf-8")
+    except ValueError as error:
+        command.error(str(error))
+    print(f"Scenario file: {Path(args.scenario).resolve()} (the feature, horizon, burn-in "
+          "and minimum effect in it are placeholders: edit them, then run "
+          f"marketsim report {args.scenario})")
     return 0

@@ -1,11 +1,12 @@
 """Which design, when the market itself is uncertain: the choice over plausible markets.
 
 A calibration leaves every parameter uncertain (:meth:`Calibration.draw` gives
-plausible markets). :func:`choose_design_robustly` screens every candidate design on
-every plausible market with the large-market model (milliseconds each), counts how
-often each wins and how much its RMSE spreads, then confirms the leaders by exact
-simulation on a few of the markets, and says whether the recommendation survives
-what the logs leave uncertain.
+plausible markets). :func:`choose_design_robustly` simulates every candidate design
+once, exactly, on the central market (the calibrated one), then screens every
+candidate on every plausible market with the large-market model (milliseconds each),
+corrected by what the simulation showed at the centre. It counts how often each
+candidate wins and how much its RMSE spreads, and says whether the recommendation
+survives what the logs leave uncertain.
 """
 
 from __future__ import annotations
@@ -21,12 +22,13 @@ from marketsim.designs import Design
 from marketsim.meanfield import gte, steady_state
 from marketsim.model import Market, Treatment
 from marketsim.planning.choice import default_candidates
-from marketsim.randomness import SeedLike, spawn
+from marketsim.randomness import SeedLike
 from marketsim.study import Arm, Study
 
 SURVIVES_SHARE = 0.7
-"""The recommendation survives when it wins the screen on at least this share of the
-plausible markets and simulation confirms it on every confirmation market."""
+"""The recommendation survives when it wins on at least this share of the plausible
+markets and the simulation at the central market confirms it (best, or within two
+Monte Carlo standard errors of the best)."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -36,14 +38,15 @@ class RobustDesignChoice:
     Attributes
     ----------
     screen : pandas.DataFrame
-        One row per market x candidate (arm x estimator): large-market ``bias``, naive
-        ``sd`` at the horizon and ``rmse``, and ``wins`` (best on that market).
+        One row per plausible market x candidate (arm x estimator): ``bias``, ``sd``
+        and ``rmse`` at the horizon (see Notes of :func:`choose_design_robustly`), and
+        ``wins`` (best on that market).
     summary : pandas.DataFrame
         One row per candidate: ``win_share`` and the RMSE's median, 10% and 90% points
         over the markets, sorted by win share then median RMSE.
     confirmation : pandas.DataFrame
-        Simulated RMSE (with Monte Carlo s.e.) of the leading candidates on the first
-        confirmation markets.
+        The simulation at the central market: ``rmse``, ``rmse_mc_se``, ``bias``,
+        ``sd`` per candidate.
     recommended : pandas.Series
         The summary's first row.
     survives : bool
@@ -68,7 +71,7 @@ class RobustDesignChoice:
         n = self.screen["market"].nunique()
         lines = [
             f"Over {n} plausible markets, {best['arm']} with the {best['estimator']} "
-            f"estimator wins the large-market screen in {best['win_share']:.0%} of them "
+            f"estimator wins in {best['win_share']:.0%} of them "
             f"(RMSE median {best['rmse_median']:.3g}, 10-90% range "
             f"{best['rmse_low']:.3g} to {best['rmse_high']:.3g}).",
             ("The recommendation survives what the logs leave uncertain." if self.survives
@@ -104,10 +107,9 @@ def choose_design_robustly(
     *,
     horizon: float,
     burn_in: float = 0.0,
+    center: Market | None = None,
     candidates: Sequence[Arm | Design] | None = None,
     metric: str = "bookings",
-    confirm: int = 2,
-    confirm_markets: int = 2,
     replications: int = 40,
     seed: SeedLike = None,
     workers: int = 1,
@@ -121,17 +123,14 @@ def choose_design_robustly(
     treatment : Treatment
     horizon, burn_in : float
         The planned experiment.
+    center : Market, optional
+        The central market, simulated exactly (default ``markets[0]``); pass
+        ``calibration.market``.
     candidates : sequence of Arm or Design, optional
         Default :func:`~marketsim.planning.choice.default_candidates`.
     metric : {"bookings", "revenue", "conversion"}
-    confirm : int
-        Leading candidates confirmed by simulation (>= 1).
-    confirm_markets : int
-        Markets (the first ones) on which they are simulated (>= 1).
-    replications : int
-        Replications of each confirmation study.
-    seed, workers
-        As for :meth:`Study.run`.
+    replications, seed, workers
+        As for :meth:`Study.run` (the study at the central market).
 
     Returns
     -------
@@ -139,24 +138,43 @@ def choose_design_robustly(
 
     Notes
     -----
-    The screen's RMSE is ``sqrt(bias**2 + sd**2)`` with the large-market bias and the
-    naive standard deviation of the estimate over the horizon (expected counts):
-    quick, but it ignores finite-market effects and the extra noise interference
-    adds, which is why the leaders are confirmed by exact simulation.
+    On a plausible market ``k`` a candidate's bias is its large-market bias there plus
+    the gap between its simulated and large-market biases at the centre (finite-market
+    effects), and its standard deviation is the simulated one at the centre scaled by
+    the ratio of naive standard errors (expected counts over the horizon, market ``k``
+    against the centre); ``rmse = sqrt(bias**2 + sd**2)``. The correction assumes the
+    finite-market effects change little between plausible markets, which holds when
+    they are close to each other, as draws from a good calibration are.
     """
     markets = list(markets)
     if len(markets) < 2 or not all(isinstance(m, Market) for m in markets):
         raise ValueError(f"markets must be a list of at least 2 marketsim.Market, got "
                          f"{len(markets)} items")
-    confirm = check.whole_number("confirm", confirm)
-    confirm_markets = check.whole_number("confirm_markets", confirm_markets)
+    center = markets[0] if center is None else center
+    if not isinstance(center, Market):
+        raise ValueError(f"center must be a marketsim.Market or None, got "
+                         f"{type(center).__name__}")
     horizon, burn_in = check.window(horizon, burn_in)
     arms = [a if isinstance(a, Arm) else Arm(a) for a in
             (default_candidates() if candidates is None else candidates)]
+    simulated = Study(center, treatment, arms, horizon=horizon, burn_in=burn_in,
+                      metric=metric).run(replications, seed=seed, workers=workers,
+                                         progress=False).summary
+    confirmation = simulated[["arm", "estimator", "bias", "sd", "rmse",
+                              "rmse_mc_se"]].reset_index(drop=True)
+    keys = ["arm", "estimator"]
+    at_center = pd.DataFrame(_screen_rows([center], treatment, arms, horizon, metric))
+    gap = at_center.merge(confirmation, on=keys, suffixes=("_large", "_sim"))
+    gap["bias_gap"] = gap["bias_sim"] - gap["bias_large"]
+    gap["sd_ratio"] = gap["sd_sim"] / gap["sd_large"]
     screen = pd.DataFrame(_screen_rows(markets, treatment, arms, horizon, metric))
+    screen = screen.merge(gap[[*keys, "bias_gap", "sd_ratio"]], on=keys)
+    screen["bias"] = screen["bias"] + screen.pop("bias_gap")
+    screen["sd"] = screen["sd"] * screen.pop("sd_ratio")
+    screen["rmse"] = np.hypot(screen["bias"], screen["sd"])
     best = screen.groupby("market")["rmse"].transform("min")
     screen["wins"] = screen["rmse"] <= best
-    grouped = screen.groupby(["arm", "estimator"], sort=False)
+    grouped = screen.groupby(keys, sort=False)
     summary = pd.DataFrame({
         "win_share": grouped["wins"].mean(),
         "rmse_median": grouped["rmse"].median(),
@@ -165,21 +183,17 @@ def choose_design_robustly(
         "bias_median": grouped["bias"].median(),
     }).reset_index().sort_values(["win_share", "rmse_median"], ascending=[False, True],
                                  kind="stable").reset_index(drop=True)
-    leaders = summary.head(confirm)
-    confirmation = _confirm(markets[:confirm_markets], treatment, arms, leaders, horizon,
-                            burn_in, metric, replications, seed, workers)
     recommended = summary.iloc[0]
-    confirmed = _confirmed_everywhere(confirmation, recommended)
+    confirmed = _confirmed(confirmation, recommended)
     survives = bool(recommended["win_share"] >= SURVIVES_SHARE and confirmed)
     notes = [
-        f"Screen: large-market bias and naive noise at the horizon on {len(markets)} "
-        f"markets; confirmation: exact simulation of the {len(leaders)} leading "
-        f"candidates on {min(confirm_markets, len(markets))} markets, {replications} "
-        "replications each.",
+        f"Every candidate simulated exactly at the central market ({replications} "
+        f"replications), then screened on {len(markets)} plausible markets with the "
+        "large-market model corrected by the simulation's finite-market gap.",
     ]
     if not confirmed:
-        notes.append("Simulation does not confirm the screen's winner on every "
-                     "confirmation market (finite-market effects or Monte Carlo error).")
+        notes.append("At the central market the simulation prefers another candidate by "
+                     "more than its Monte Carlo error.")
     return RobustDesignChoice(screen, summary, confirmation, recommended, survives,
                               tuple(notes))
 
@@ -199,39 +213,13 @@ def _screen_rows(markets, treatment, arms, horizon, metric) -> list[dict]:
     return rows
 
 
-def _confirm(markets, treatment, arms, leaders, horizon, burn_in, metric, replications,
-             seed, workers) -> pd.DataFrame:
-    by_label = {arm.label: arm for arm in arms}
-    frames = []
-    for k, (market, child) in enumerate(zip(markets, spawn(seed, len(markets)))):
-        chosen = []
-        for row in leaders.itertuples():
-            arm = by_label[row.arm]
-            estimator = next(e for e in arm.resolve(market) if e.name == row.estimator)
-            chosen.append(Arm(arm.design, estimator, name=f"{row.arm} | {row.estimator}"))
-        study = Study(market, treatment, chosen, horizon=horizon, burn_in=burn_in,
-                      metric=metric)
-        summary = study.run(replications, seed=child, workers=workers,
-                            progress=False).summary
-        frames.append(pd.DataFrame({
-            "market": k,
-            "arm": [label.split(" | ")[0] for label in summary.arm],
-            "estimator": summary.estimator.to_numpy(),
-            "rmse": summary.rmse.to_numpy(), "rmse_mc_se": summary.rmse_mc_se.to_numpy(),
-        }))
-    return pd.concat(frames, ignore_index=True)
-
-
-def _confirmed_everywhere(confirmation: pd.DataFrame, recommended: pd.Series) -> bool:
-    """Whether the recommended candidate is best, or within 2 Monte Carlo s.e. of the
-    best, on every confirmation market."""
-    for _, rows in confirmation.groupby("market"):
-        mine = rows[(rows.arm == recommended["arm"])
-                    & (rows.estimator == recommended["estimator"])].iloc[0]
-        best = rows.rmse.min()
-        if mine.rmse - best > 2 * np.hypot(mine.rmse_mc_se, rows.rmse_mc_se.min()):
-            return False
-    return True
+def _confirmed(confirmation: pd.DataFrame, recommended: pd.Series) -> bool:
+    """Whether the recommended candidate is best in the central simulation, or within
+    two Monte Carlo standard errors of the best."""
+    mine = confirmation[(confirmation.arm == recommended["arm"])
+                        & (confirmation.estimator == recommended["estimator"])].iloc[0]
+    best = confirmation.loc[confirmation.rmse.idxmin()]
+    return bool(mine.rmse - best.rmse <= 2 * np.hypot(mine.rmse_mc_se, best.rmse_mc_se))
 
 
 __all__ = ["RobustDesignChoice", "choose_design_robustly"]

@@ -25,6 +25,7 @@ from marketsim.meanfield.figures import plot_balance_sweep
 from marketsim.model.scenario_file import Scenario
 from marketsim.planning import choose_design, default_candidates, plan_horizon, power_table
 from marketsim.randomness import SeedLike, spawn
+from marketsim.report.calibration import calibration_section
 from marketsim.report.markdown import Report
 from marketsim.report.wording import coverage_sentence
 from marketsim.study import CAVEAT, Arm, Study, StudyResult, default_workers
@@ -208,7 +209,7 @@ def plan_section(report: Report, scenario: Scenario, replications: int,
 
 def write_full_report(scenario: Scenario, replications: int = 200, seed: SeedLike = 2026,
                       out: str | Path = "marketsim-report",
-                      workers: int | None = None) -> Path:
+                      workers: int | None = None, calibration: bool = False) -> Path:
     """Run the whole job on a scenario and write it up.
 
     Scores the standard designs over the planned horizon (a study), sweeps
@@ -228,6 +229,9 @@ def write_full_report(scenario: Scenario, replications: int = 200, seed: SeedLik
         Folder for the report (created if needed).
     workers : int, optional
         Worker processes (default: the usable cores, at most 4).
+    calibration : bool
+        Add the calibration step: a log simulated from the market is calibrated and
+        the design is chosen over plausible markets (the demo does this).
 
     Returns
     -------
@@ -236,7 +240,7 @@ def write_full_report(scenario: Scenario, replications: int = 200, seed: SeedLik
     """
     market, treatment = scenario.market, scenario.treatment
     workers = min(4, default_workers()) if workers is None else workers
-    study_seed, plan_seed = spawn(seed, 2)
+    study_seed, plan_seed, calibration_seed = spawn(seed, 3)
     report = Report(out, f"Experiment report: {scenario.name}")
     report.text(f"Feature under test: {treatment}. Market: {market}. Rates and times are "
                 f"per {scenario.time_unit}.")
@@ -249,6 +253,8 @@ def write_full_report(scenario: Scenario, replications: int = 200, seed: SeedLik
     study_section(report, result, scenario)
     sweep_section(report, scenario)
     plan_section(report, scenario, replications, plan_seed, workers)
+    if calibration:
+        calibration_section(report, scenario, replications, calibration_seed, workers)
     report.heading("What these numbers are worth")
     report.text(CAVEAT)
     path = report.write()

@@ -1,0 +1,109 @@
+"""Calibration in words and in the report: the parameter table, the fit checks, the
+design choice over plausible markets, and the scenario file of a calibrated market."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from marketsim.calibration import Calibration, ExperimentAnalysis, calibrate
+from marketsim.model import Treatment
+from marketsim.model.scenario_file import Scenario
+from marketsim.planning import choose_design_robustly
+from marketsim.randomness import SeedLike, spawn
+from marketsim.report.markdown import Report
+from marketsim.study import simulate_log
+
+LOG_LENGTH = 500.0
+"""Length (in the scenario's time unit) of the log the demo simulates and calibrates."""
+PLAUSIBLE_MARKETS = 20
+"""Plausible markets the report's robust design choice screens."""
+
+
+def format_table(fit: Calibration) -> str:
+    """The parameter table as text."""
+    table = fit.table.copy()
+    for column in ("estimate", "se", "low", "high"):
+        table[column] = table[column].map(lambda v: "" if not np.isfinite(v) else f"{v:.4g}")
+    return table.to_string(index=False)
+
+
+def calibration_text(fit: Calibration) -> str:
+    """Everything ``marketsim calibrate`` prints: table, checks and notes."""
+    lines = [repr(fit), "", "Parameters (95% intervals):", format_table(fit), "",
+             "Fit checks:", fit.checks.text(), ""]
+    lines.extend(f"Note: {note}" for note in fit.notes)
+    return "\n".join(lines)
+
+
+def analysis_text(analysis: ExperimentAnalysis) -> str:
+    """Everything ``marketsim analyze`` prints."""
+    balance = analysis.balance
+    lines = [
+        f"Treated share of sessions {analysis.customer_fraction:.3f}; of listings per type "
+        f"{np.round(analysis.listing_fraction, 3).tolist()}; market balance "
+        f"{balance.attrs['market_balance']:.3g}.", "",
+        "Arms:", balance.to_string(index=False), "",
+        "Group rates Q_xy (bookings per unit time):",
+        analysis.group_rates.to_string(index=False), "",
+        "Estimates (naive 95% intervals):", analysis.estimates.to_string(index=False), "",
+    ]
+    lines.extend(f"Note: {note}" for note in analysis.notes)
+    return "\n".join(lines)
+
+
+def calibrated_scenario(fit: Calibration, name: str, treatment: Treatment, horizon: float,
+                        burn_in: float, minimum_effect: float, time_unit: str) -> Scenario:
+    """A scenario file's content for the calibrated market (feature and plan as given)."""
+    return Scenario(name=name, market=fit.market, treatment=treatment, horizon=horizon,
+                    burn_in=burn_in, minimum_effect=minimum_effect, time_unit=time_unit)
+
+
+def calibration_section(report: Report, scenario: Scenario, replications: int,
+                        seed: SeedLike, workers: int) -> Calibration:
+    """Simulate a platform log from the scenario's market, calibrate it, check the fit,
+    and choose the design over the plausible markets; print and report it all."""
+    log_seed, draw_seed, choice_seed = spawn(seed, 3)
+    unit = scenario.time_unit
+    log = simulate_log(scenario.market, horizon=LOG_LENGTH, burn_in=scenario.burn_in,
+                       seed=log_seed)
+    fit = calibrate(log.sessions, log.stays, log.listings, log.impressions)
+    print(f"Calibration from a simulated log ({len(log.sessions):,} sessions over "
+          f"{LOG_LENGTH:g} {unit}s):")
+    print(calibration_text(fit))
+    report.heading("4. Your own market: calibrated from platform logs")
+    report.text(
+        f"A platform's logs stand in here as a log simulated from the scenario's market: "
+        f"{len(log.sessions):,} sessions, {len(log.stays):,} stays and "
+        f"{len(log.impressions):,} impressions over {LOG_LENGTH:g} {unit}s. Every "
+        "parameter is estimated by maximum likelihood with a standard error (utilities "
+        "relative to leaving, the only thing the logs identify)."
+    )
+    report.table(fit.table, {c: _number for c in ("estimate", "se", "low", "high")})
+    report.figure(fit.plot(), "calibration_checks.png",
+                  "Fit checks: booking rates, busy-time shape, arrivals by hour")
+    report.text("\n".join(f"- {line}" for line in fit.checks.text().split("\n")))
+    markets = fit.draw(PLAUSIBLE_MARKETS, seed=draw_seed)
+    robust = choose_design_robustly(
+        markets, scenario.treatment, horizon=scenario.horizon, burn_in=scenario.burn_in,
+        center=fit.market, replications=max(2, min(replications, 40)), seed=choice_seed,
+        workers=workers)
+    report.text(f"Which design wins over {PLAUSIBLE_MARKETS} markets drawn from the "
+                "estimates' sampling distribution (every candidate simulated at the "
+                "calibrated market, then screened on each plausible market with the "
+                "large-market model corrected by that simulation):")
+    report.table(robust.summary.head(8), {"win_share": "{:.0%}", "rmse_median": "{:.3f}",
+                                          "rmse_low": "{:.3f}", "rmse_high": "{:.3f}",
+                                          "bias_median": "{:+.3f}"})
+    report.figure(robust.plot(), "robust_choice.png",
+                  "RMSE of each candidate over the plausible markets")
+    report.text(robust.report().replace("\n", "\n\n"))
+    print(robust.report())
+    return fit
+
+
+def _number(value: float) -> str:
+    return "" if not np.isfinite(value) else f"{value:.4g}"
+
+
+__all__ = ["calibration_text", "analysis_text", "calibrated_scenario",
+           "calibration_section", "format_table"]
