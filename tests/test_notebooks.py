@@ -24,6 +24,7 @@ EXPECTED = {
     "01_stress_test_an_experiment.ipynb",
     "02_sweep_balance.ipynb",
     "03_size_an_experiment.ipynb",
+    "04_calibrate_from_logs.ipynb",
 }
 KERNEL_NAME = "marketsim-notebook-test"
 CELL_TIMEOUT = 300  # seconds per cell
