@@ -30,7 +30,7 @@ def ledger_of(log: ms.engine.logs.PlatformLog) -> Ledger:
                   mean_available=np.full(cells.n_listing_cells, np.nan),
                   final_available=np.zeros(cells.n_listing_cells, dtype=np.int64), events=0,
                   bin_edges=np.empty(0), bin_bookings=np.zeros((0, *bookings.shape)),
-                  bin_arrivals=np.zeros((0, cells.n_customer_cells)))
+                  bin_arrivals=np.zeros((0, cells.n_customer_cells)), engine="chain")
 
 
 @pytest.mark.parametrize("design", [ms.TwoSided(0.5, 0.5), ms.CustomerSide(0.3),
