@@ -483,3 +483,25 @@ def test_study_runs_markets_with_general_busy_times_and_a_profile():
     first, second = (study.run(replications=4, seed=2, progress=False) for _ in range(2))
     pd.testing.assert_frame_equal(first.summary, second.summary)
     assert np.isfinite(first.summary["bias"]).all()
+
+
+def test_too_few_treated_listings_are_explained():
+    """ListingSide(0.01) on the 40-listing market (30 rooms, 10 studios): round(0.01 x 30)
+    = round(0.01 x 10) = 0, so no listing is treated. Study says that rounding did it and
+    which share gives one treated listing (0.5 / 30 = 0.0167); simulate warns; a share that
+    treats one listing runs quietly."""
+    market = ms.scenarios.rehearsal_rooms()
+    feature = ms.scenarios.instant_confirmation()
+    with pytest.raises(ValueError, match=r"rounding left no treated listing.*at least 0\.0167"):
+        ms.Study(market, feature, [ms.ListingSide(0.01)], horizon=10.0).run(
+            2, seed=1, progress=False)
+    with pytest.raises(ValueError, match="rounding left no treated listing"):
+        ms.Study(market, feature, [ms.Arm(ms.ListingSide(0.01), ms.ListingSideEstimator())],
+                 horizon=10.0).run(2, seed=1, progress=False)
+    with pytest.warns(RuntimeWarning, match="rounding left no treated listing"):
+        ms.simulate(market, feature, ms.ListingSide(0.01), horizon=5.0, seed=1)
+    with pytest.warns(RuntimeWarning, match=r"rounding treated every listing.*below 0\.983"):
+        ms.simulate(market, feature, ms.ListingSide(0.99), horizon=5.0, seed=1)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        ms.simulate(market, feature, ms.ListingSide(0.0167), horizon=5.0, seed=1)

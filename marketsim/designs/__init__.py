@@ -25,6 +25,7 @@ from marketsim.designs.randomized import (
     ListingSide,
     TwoSided,
     TwoSidedFollowingBalance,
+    listing_rounding_note,
 )
 from marketsim.designs.split import CellSplit
 
@@ -37,4 +38,5 @@ __all__ = [
     "ListingSide",
     "TwoSided",
     "TwoSidedFollowingBalance",
+    "listing_rounding_note",
 ]

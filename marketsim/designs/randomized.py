@@ -227,4 +227,40 @@ class TwoSidedFollowingBalance(Design):
                 f"a_L*={self.listings:.3g})")
 
 
-__all__ = ["CustomerSide", "ListingSide", "TwoSided", "TwoSidedFollowingBalance"]
+def listing_rounding_note(design: Design, market: Market) -> str | None:
+    """Why a design that asks for some treated listings treats none (or all) in ``market``.
+
+    Treated listings are counted per type as ``floor(share * n_j + 0.5)``, so a
+    small share of a small market can round to no treated listing at all (and a
+    large one to every listing). Returns the explanation, with the share that
+    would give one treated (or one control) listing, or None when rounding
+    leaves both groups non-empty or the design does not randomize listings.
+    """
+    if isinstance(design, TwoSidedFollowingBalance):
+        design = design.at(market.balance)
+    if isinstance(design, ListingSide):
+        share = design.treated
+    elif isinstance(design, TwoSided):
+        share = design.listings
+    else:
+        return None
+    if not 0.0 < share < 1.0:
+        return None
+    counts = [int(n) for n in market.listing_counts]
+    treated = sum(math.floor(share * n + 0.5) for n in counts)
+    largest = max(counts)
+    if treated == 0:
+        return (f"rounding left no treated listing: a treated share of {share:g} of "
+                f"{', '.join(str(n) for n in counts)} listing(s) per type rounds to 0 "
+                f"(treated listings per type are round(share x count)); a share of at least "
+                f"{0.5 / largest:.3g} treats one listing")
+    if treated == sum(counts):
+        return (f"rounding treated every listing: a treated share of {share:g} of "
+                f"{', '.join(str(n) for n in counts)} listing(s) per type rounds to all of "
+                f"them (treated listings per type are round(share x count)); a share below "
+                f"{(largest - 0.5) / largest:.3g} leaves one listing in control")
+    return None
+
+
+__all__ = ["CustomerSide", "ListingSide", "TwoSided", "TwoSidedFollowingBalance",
+           "listing_rounding_note"]

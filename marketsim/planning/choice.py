@@ -160,6 +160,25 @@ def choose_design(
     study = Study(market, treatment, arms, horizon=horizon, burn_in=burn_in, metric=metric)
     result = study.run(replications, seed=seed, workers=workers, progress=progress,
                        backend=backend, client=client, store=store)
+    return choice_from_result(result, arms, market)
+
+
+def choice_from_result(result: StudyResult, arms: Sequence[Arm],
+                       market: Market) -> DesignChoice:
+    """The design choice among the arms of a study already run (its own truth and rows).
+
+    Parameters
+    ----------
+    result : StudyResult
+        A study of ``arms`` on ``market`` at the planned horizon.
+    arms : sequence of Arm
+        The study's arms (to hand back the ranked design objects).
+    market : Market
+
+    Returns
+    -------
+    DesignChoice
+    """
     table, notes = rank_candidates(result)
     notes.append(result.caveats)
     by_label = {arm.label: arm for arm in arms}
@@ -236,4 +255,5 @@ def _rmse_difference_error(result: StudyResult, first: pd.Series, second: pd.Ser
     return float(np.std(difference, ddof=1) / math.sqrt(difference.size))
 
 
-__all__ = ["TIE_RULE", "DesignChoice", "choose_design", "default_candidates", "rank_candidates"]
+__all__ = ["TIE_RULE", "DesignChoice", "choose_design", "default_candidates", "rank_candidates",
+           "choice_from_result"]

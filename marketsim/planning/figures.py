@@ -50,7 +50,11 @@ def plot_sweep(table: pd.DataFrame, metric: str | None = None,
     else:
         panels = [("bias", "bias_mc_se", "bias"), ("sd", None, "standard deviation"),
                   ("rmse", "rmse_mc_se", "RMSE")]
-    fig, axes = plt.subplots(1, len(panels), figsize=(4.7 * len(panels), 4.2), sharex=True)
+    columns = len(panels)  # legend columns: about one per panel's width
+    entries = data[["arm", "estimator"]].drop_duplicates().shape[0] + (market_value is not None)
+    legend_rows = -(-entries // columns)
+    height = 4.2 + 0.25 * legend_rows
+    fig, axes = plt.subplots(1, len(panels), figsize=(5.2 * len(panels), height), sharex=True)
     for (arm, estimator), group in data.groupby(["arm", "estimator"], sort=False):
         x = pd.to_numeric(group["value"], errors="coerce").to_numpy(float)
         for axis, (column, error, _) in zip(axes, panels):
@@ -81,12 +85,11 @@ def plot_sweep(table: pd.DataFrame, metric: str | None = None,
     if market_value is not None and parameter != "balance":
         labels = [label.replace("this market (balance", f"this market ({parameter}")
                   for label in labels]
-    fig.legend(handles, labels, loc="lower center", ncol=min(3, max(1, len(labels))),
-               fontsize="small", frameon=False)
+    fig.legend(handles, labels, loc="lower center", ncol=columns, fontsize="small",
+               frameon=False)
     mode = "large-market limit, no noise" if noiseless else "simulation, +-2 Monte Carlo s.e."
     fig.suptitle(f"{metric} against {parameter} ({mode})")
-    rows = (len(labels) + 2) // 3
-    fig.tight_layout(rect=(0, min(0.5, 0.06 * rows), 1, 1))
+    fig.tight_layout(rect=(0, (0.2 * legend_rows + 0.1) / height, 1, 1))
     return fig
 
 
@@ -108,23 +111,25 @@ def plot_design_choice(table: pd.DataFrame):
     """
     import matplotlib.pyplot as plt
 
-    labels = [f"{a} | {e}" for a, e in zip(table["arm"], table["estimator"])]
+    labels = [f"{a}\n{e}" for a, e in zip(table["arm"], table["estimator"])]
     if "tied" in table:
-        labels = [f"{label}  (tied)" if tied and k else label
+        labels = [f"{label} (tied)" if tied and k else label
                   for k, (label, tied) in enumerate(zip(labels, table["tied"]))]
-    labels[0] = f"{labels[0]}  (recommended)"
+    labels[0] = f"{labels[0]} (recommended)"
     y = np.arange(len(table))[::-1]
-    fig, axis = plt.subplots(figsize=(9, 0.45 * len(table) + 2.2))
+    height = 0.6 * len(table) + 1.8
+    fig, axis = plt.subplots(figsize=(9, height))
     axis.barh(y + 0.2, table["bias"].abs(), height=0.4, label="|bias| (does not shrink)")
     axis.barh(y - 0.2, table["sd"], height=0.4, label="standard deviation")
     axis.errorbar(table["rmse"], y, xerr=2.0 * table["rmse_mc_se"], fmt="D", color="black",
                   markersize=4, capsize=2, label="RMSE (+-2 Monte Carlo s.e.)")
     axis.set_yticks(y, labels, fontsize="small")
     axis.set_xlabel(f"{table['metric'].iloc[0]} (same units as the effect)")
-    axis.set_title("Design choice at the planned horizon (recommended at the top)")
+    axis.set_title("Design choice at the planned horizon\n(recommended at the top)",
+                   fontsize="medium")
     axis.grid(axis="x", alpha=0.3)
     # Below the axes, where it covers no bar.
-    axis.legend(fontsize="small", loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=3,
-                frameon=False)
-    fig.tight_layout()
+    fig.legend(*axis.get_legend_handles_labels(), loc="lower center", ncol=3,
+               fontsize="small", frameon=False)
+    fig.tight_layout(rect=(0, 0.45 / height, 1, 1))
     return fig

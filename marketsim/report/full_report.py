@@ -8,22 +8,19 @@ Markdown report.
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
 from marketsim import meanfield
-from marketsim.designs import CustomerSide, ListingSide, TwoSided
-from marketsim.estimators import (
-    CustomerSideEstimator,
-    ListingSideEstimator,
-    TwoSidedCorrected,
-    TwoSidedNaive,
-)
+from marketsim.designs import CustomerSide, ListingSide, TwoSided, TwoSidedFollowingBalance
 from marketsim.meanfield.figures import plot_balance_sweep
+from marketsim.model import Market, Treatment
 from marketsim.model.scenario_file import Scenario
-from marketsim.planning import choose_design, default_candidates, plan_horizon, power_table
+from marketsim.planning import default_candidates, plan_horizon, power_table, readable_duration
+from marketsim.planning.choice import choice_from_result
 from marketsim.randomness import SeedLike, spawn
 from marketsim.report.calibration import calibration_section
 from marketsim.report.markdown import Report
@@ -34,30 +31,36 @@ SWEEP_LISTINGS = 1000
 """The balance sweep uses the large-market limit of the market grown to at least this size."""
 
 
-def study_arms(scenario: Scenario) -> list[Arm]:
-    """Customer-side, listing-side and two two-sided designs, each with its own
-    estimators."""
-    two_sided = [TwoSidedNaive(), TwoSidedCorrected(k=1), TwoSidedCorrected(k=2)]
-    following = TwoSided.for_balance(scenario.market.balance)
-    return [
-        Arm(CustomerSide(0.5), [CustomerSideEstimator()], name="customer-side 0.5"),
-        Arm(ListingSide(0.5), [ListingSideEstimator()], name="listing-side 0.5"),
-        Arm(TwoSided(0.5, 0.5), two_sided, name="two-sided 0.5/0.5"),
-        Arm(following, two_sided,
-            name=f"two-sided for balance {following.customers:.2f}/{following.listings:.2f}"),
-    ]
+STANDARD_DESIGNS = (CustomerSide(0.5), ListingSide(0.5), TwoSided(0.5, 0.5),
+                    TwoSidedFollowingBalance())
+"""The designs of the report's first section and of its balance sweep (each with its own
+estimators); the design choice compares them with the other candidates."""
 
 
 def run_study(scenario: Scenario, replications: int, seed: SeedLike,
-              workers: int) -> StudyResult:
-    """Score the standard designs on the scenario over the planned horizon."""
-    study = Study(scenario.market, scenario.treatment, study_arms(scenario),
-                  horizon=scenario.horizon, burn_in=scenario.burn_in)
+              workers: int) -> tuple[StudyResult, list[Arm]]:
+    """One study of every candidate design over the planned horizon: section 1 shows the
+    standard designs, section 3 ranks them all (one truth for the whole report)."""
+    arms = default_candidates()
+    standard = {design.label for design in STANDARD_DESIGNS}
+    missing = standard - {arm.label for arm in arms}
+    arms += [Arm(design) for design in STANDARD_DESIGNS if design.label in missing]
+    study = Study(scenario.market, scenario.treatment, arms, horizon=scenario.horizon,
+                  burn_in=scenario.burn_in)
     unit = scenario.time_unit
-    print(f"Study: {len(study.arms)} designs, {replications} replications of "
-          f"{scenario.horizon:g} {unit}s after a {scenario.burn_in:g}-{unit} burn-in, "
-          f"{workers} worker process(es)")
-    return study.run(replications, seed=seed, workers=workers, progress=True)
+    print(f"Study: {len(study.arms)} candidate designs, {replications} replications of "
+          f"{scenario.horizon:g} {unit}s measured after a {scenario.burn_in:g}-{unit} "
+          f"burn-in, {workers} worker process(es)")
+    return study.run(replications, seed=seed, workers=workers, progress=True), arms
+
+
+def standard_rows(result: StudyResult) -> StudyResult:
+    """The study restricted to the standard designs (for section 1)."""
+    labels = {design.label for design in STANDARD_DESIGNS}
+    return replace(result, summary=result.summary[result.summary["arm"].isin(labels)]
+                   .reset_index(drop=True),
+                   replications=result.replications[result.replications["arm"].isin(labels)]
+                   .reset_index(drop=True))
 
 
 def format_summary(result: StudyResult) -> str:
@@ -100,11 +103,16 @@ def study_section(report: Report, result: StudyResult, scenario: Scenario) -> No
     unit = scenario.time_unit
     report.heading("1. How biased and how noisy is each design?")
     report.text(
-        f"Each of {result.completed} replications simulates {scenario.horizon:g} {unit}s "
-        f"(after a {scenario.burn_in:g}-{unit} burn-in) of both global worlds and of every "
-        f"design. True global treatment effect: **{truth['value']:.3f} bookings per {unit}** "
-        f"(Monte Carlo s.e. {truth['mc_se']:.3f}), from {truth['global_control']:.3f} to "
-        f"{truth['global_treatment']:.3f}."
+        f"Each of {result.completed} replications simulates a horizon of "
+        f"{readable_duration(scenario.horizon, unit)} (the measured window, after a "
+        f"{scenario.burn_in:g}-{unit} burn-in that is simulated but not measured) of both "
+        "global worlds and of every design. True global treatment effect: "
+        f"**{truth['value']:.3f} bookings per {unit}** (Monte Carlo s.e. {truth['mc_se']:.3f}), "
+        f"from {truth['global_control']:.3f} to {truth['global_treatment']:.3f}; the same "
+        "simulations serve the design choice of section 3, so the report has one truth. "
+        "Relative bias is the bias in percent of that effect; `mean_naive_se` is the "
+        "standard error an analyst would report; `coverage` is how often the nominal 95% "
+        "interval contains the truth."
     )
     columns = ["arm", "estimator", "mean_estimate", "bias", "bias_mc_se", "relative_bias",
                "sd", "mean_naive_se", "rmse", "coverage"]
@@ -140,55 +148,69 @@ def study_section(report: Report, result: StudyResult, scenario: Scenario) -> No
                   "observed_power": "{:.2f}", "ideal_test_power": "{:.2f}"})
 
 
+def crossing_finding(market: Market, treatment: Treatment) -> str:
+    """Where customer-side and listing-side randomization are equally biased, and which
+    side of that this market's balance is on (root-finding on the large-market curves)."""
+    one_sided = (CustomerSide(0.5), ListingSide(0.5))
+    crossings = meanfield.crossover_balances(market, treatment, *one_sided)
+    balance = market.balance
+    if len(crossings) == 0:
+        lower = [abs(float(meanfield.expected_estimates(market, treatment, d)
+                           ["relative_bias"].iloc[0])) for d in one_sided]
+        side = "customer-side" if lower[0] < lower[1] else "listing-side"
+        return (f"{side.capitalize()} randomization is the less biased one-sided design at "
+                "every balance from 0.01 to 100")
+    points = ", ".join(f"{b:.3g}" for b in crossings)
+    first = crossings[0]
+    where = ("below" if balance < first else "above" if len(crossings) == 1 else "beyond")
+    return (f"The one-sided designs are equally biased at a balance of {points} (the root of "
+            "the large-market curves, to three significant digits); customer-side "
+            f"randomization is the less biased one below {first:.3g}, listing-side above. "
+            f"This market's balance, {balance:.3g}, is {where} that crossing")
+
+
 def sweep_section(report: Report, scenario: Scenario) -> pd.DataFrame:
     """Large-market bias of the standard designs over balance, in the report."""
     market = scenario.market
-    designs = {"customer-side 0.5": CustomerSide(0.5), "listing-side 0.5": ListingSide(0.5),
-               "two-sided 0.5/0.5": TwoSided(0.5, 0.5),
-               "two-sided for balance": TwoSided.for_balance}
     large = market.scaled(max(1.0, SWEEP_LISTINGS / market.n_listings))
-    table = meanfield.sweep_balance(large, scenario.treatment, designs,
+    table = meanfield.sweep_balance(large, scenario.treatment, list(STANDARD_DESIGNS),
                                     np.logspace(-2, 2, 41))
-    one_sided = table[table["design"].isin(["customer-side 0.5", "listing-side 0.5"])]
-    wide = one_sided.pivot_table(index="balance", columns="design", values="relative_bias")
-    customer_better = wide["customer-side 0.5"].abs() < wide["listing-side 0.5"].abs()
-    listing_better = wide.index[~customer_better.to_numpy()]
-    if len(listing_better):
-        switch = float(listing_better.min())
-        finding = (f"Customer-side randomization is the less biased one-sided design below a "
-                   f"balance of about {switch:.2g}, listing-side above it")
-    else:
-        finding = "Customer-side randomization is the less biased one-sided design throughout"
+    finding = crossing_finding(large, scenario.treatment)
+    following = TwoSided.for_balance(market.balance)
     report.heading("2. How does the bias depend on the balance of demand and supply?")
     report.text(
         f"The large-market limit of the same market ({large.n_listings:,} listings, no Monte "
-        f"Carlo error), with the arrival rate varied. This market's balance is "
-        f"{market.balance:.2f}. {finding}; two-sided randomization with fractions that "
-        "follow balance becomes customer-side when demand is scarce and listing-side when "
-        "supply is scarce."
+        "Carlo error), with the arrival rate varied; the dotted line marks this market's "
+        f"balance, {market.balance:.3g}. {finding}. Two-sided randomization with fractions "
+        "that follow balance becomes customer-side when demand is scarce and listing-side "
+        f"when supply is scarce; at this market's balance it treats {following.customers:.0%} "
+        f"of customers and {following.listings:.0%} of listings."
     )
-    report.figure(plot_balance_sweep(table, ylim=(-1.0, 3.0)), "balance_sweep.png",
-                  "Relative bias against balance (large-market limit)")
-    print(f"Balance sweep: {finding.lower()}.")
+    report.figure(plot_balance_sweep(table, ylim=(-1.0, 3.0), market_balance=market.balance),
+                  "balance_sweep.png",
+                  "Relative bias in percent of the true effect against balance (large-market "
+                  "limit; axis cut at -100% and +300%; dotted line: this market)")
+    print(f"Balance sweep: {finding[0].lower() + finding[1:]}.")
     return table
 
 
-def plan_section(report: Report, scenario: Scenario, replications: int,
-                 seed: np.random.SeedSequence, workers: int) -> None:
-    """Design choice at the planned horizon and the horizon for the minimum effect."""
+def plan_section(report: Report, scenario: Scenario, result: StudyResult, arms: list[Arm],
+                 replications: int, seed: SeedLike, workers: int) -> None:
+    """Design choice at the planned horizon (from the study) and the horizon for the
+    minimum effect."""
     market, treatment, unit = scenario.market, scenario.treatment, scenario.time_unit
-    choice_seed, plan_seed = spawn(seed, 2)
-    candidates = default_candidates()
-    choice = choose_design(market, treatment, horizon=scenario.horizon,
-                           burn_in=scenario.burn_in, candidates=candidates,
-                           replications=replications, seed=choice_seed, workers=workers,
-                           progress=True)
+    choice = choice_from_result(result, arms, market)
     best = choice.recommended
     report.heading("3. Which design, and how long to run it?")
-    report.text(f"All candidate designs at the planned horizon of {scenario.horizon:g} "
-                f"{unit}s, best first:")
+    report.text(
+        f"All candidate designs at the planned horizon of "
+        f"{readable_duration(scenario.horizon, unit)}, from the simulations of section 1, "
+        "best first. `bias_share` is the share of the squared RMSE that is squared bias "
+        "(near 100%, a longer test will not help); `tied` marks candidates within two paired "
+        "Monte Carlo standard errors of the smallest RMSE."
+    )
     report.table(choice.table[["rank", "arm", "estimator", "bias", "sd", "rmse",
-                               "rmse_mc_se", "bias_share"]].head(8),
+                               "rmse_mc_se", "bias_share", "tied"]].head(8),
                  {"bias": "{:+.3f}", "sd": "{:.3f}", "rmse": "{:.3f}",
                   "rmse_mc_se": "{:.3f}", "bias_share": "{:.0%}"})
     report.figure(choice.plot(), "design_choice.png",
@@ -196,12 +218,17 @@ def plan_section(report: Report, scenario: Scenario, replications: int,
     report.text(choice.report().replace("\n", "\n\n"))
     plan = plan_horizon(market, treatment, choice, pilot_horizon=scenario.horizon / 4,
                         burn_in=scenario.burn_in, minimum_effect=scenario.minimum_effect,
-                        replications=replications, seed=plan_seed, workers=workers,
+                        replications=replications, seed=seed, workers=workers,
                         progress=True, time_unit=unit)
-    report.text(f"How long must **{best['arm']}** with the {best['estimator']} estimator run "
-                f"to detect {scenario.minimum_effect:g} more bookings per {unit} (80% power, "
-                "5% level, with the standard error the analyst reports)? The horizon is the "
-                "measured window after the burn-in.")
+    report.text(
+        f"How long must **{best['arm']}** with the {best['estimator']} estimator run to "
+        f"detect {scenario.minimum_effect:g} more bookings per {unit} (80% power, 5% level, "
+        "with the standard error the analyst reports)? The horizon is the measured window "
+        f"after the burn-in. The plan runs its own pilots at {scenario.horizon / 4:g} and "
+        f"{scenario.horizon:g} {unit}s, so its true effect "
+        f"({plan.table['truth'].iloc[0]:.3g}) is another Monte Carlo estimate of the effect "
+        "of section 1 and differs from it by Monte Carlo error."
+    )
     report.text(plan.report().replace("\n", "\n\n"))
     print(choice.report())
     print(plan.report())
@@ -212,10 +239,11 @@ def write_full_report(scenario: Scenario, replications: int = 200, seed: SeedLik
                       workers: int | None = None, calibration: bool = False) -> Path:
     """Run the whole job on a scenario and write it up.
 
-    Scores the standard designs over the planned horizon (a study), sweeps
-    balance in the large-market limit, chooses a design at the planned horizon
-    and sizes the experiment for the minimum effect; prints the main figures and
-    writes ``report.md`` with its PNG figures into ``out``.
+    Scores every candidate design over the planned horizon (one study, one
+    truth: the standard designs are shown first, then all are ranked), sweeps
+    balance in the large-market limit, and sizes the recommended design for the
+    minimum effect (the horizon is the measured window after the burn-in); prints
+    the main figures and writes ``report.md`` with its PNG figures into ``out``.
 
     Parameters
     ----------
@@ -248,11 +276,12 @@ def write_full_report(scenario: Scenario, replications: int = 200, seed: SeedLik
     print(f"Scenario: {scenario.name}")
     print(f"  {market}")
     print(f"  feature under test: {treatment}")
-    result = run_study(scenario, replications, study_seed, workers)
-    print_study(result, scenario.time_unit)
-    study_section(report, result, scenario)
+    result, arms = run_study(scenario, replications, study_seed, workers)
+    standard = standard_rows(result)
+    print_study(standard, scenario.time_unit)
+    study_section(report, standard, scenario)
     sweep_section(report, scenario)
-    plan_section(report, scenario, replications, plan_seed, workers)
+    plan_section(report, scenario, result, arms, replications, plan_seed, workers)
     if calibration:
         calibration_section(report, scenario, replications, calibration_seed, workers)
     report.heading("What these numbers are worth")

@@ -5,7 +5,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from marketsim.designs import Design
+from marketsim.designs import Design, listing_rounding_note
 from marketsim.estimators import Estimator, default_estimators
 from marketsim.model import Market
 
@@ -95,10 +95,13 @@ class Arm:
         if self.estimators is None:
             chosen = default_estimators(self.design, market)
             if not chosen:
+                note = listing_rounding_note(self.design, market)
+                reason = (f"on {market.n_listings} listings {note}" if note is not None
+                          else "it must randomize customers or listings")
                 raise ValueError(
                     f"arm {self.label!r} has no built-in estimator that fits its design "
-                    f"{self.design!r} (it must randomize customers or listings); "
-                    "pass estimators=[...] or use another design"
+                    f"{self.design!r} ({reason}); pass estimators=[...] or use another "
+                    "design"
                 )
             return chosen
         split = self.design.split(market)
@@ -106,9 +109,11 @@ class Arm:
             try:
                 estimator.weights(split, market)
             except ValueError as error:
+                note = listing_rounding_note(self.design, market)
                 raise ValueError(
                     f"arm {self.label!r}: estimator {estimator.name!r} does not fit the "
                     f"design {self.design!r}: {error}"
+                    + ("" if note is None else f"; on {market.n_listings} listings {note}")
                 ) from None
         return self.estimators
 

@@ -6,11 +6,13 @@ engine in the flow; this module sits above both, so neither has to know the othe
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 from numpy.typing import ArrayLike
 
 from marketsim import _validation as check
-from marketsim.designs import Design
+from marketsim.designs import Design, listing_rounding_note
 from marketsim.engine import START_OPTIONS, Ledger, MarketCells, build_cells, run_cells
 from marketsim.engine.logs import PlatformLog, run_logged_cells
 from marketsim.meanfield import steady_state
@@ -92,6 +94,10 @@ def simulate(
     (2, 2)
     """
     cells = build_cells(market, treatment, design)
+    note = None if design is None else listing_rounding_note(design, market)
+    if note is not None:
+        warnings.warn(f"simulate: {design!r} on {market.n_listings} listings: {note}",
+                      RuntimeWarning, stacklevel=2)
     return run_cells(cells, horizon=horizon, burn_in=burn_in, seed=seed,
                      start=starting_availability(cells, start), bins=bins)
 
