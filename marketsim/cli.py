@@ -12,6 +12,17 @@
     write a scenario file that ``marketsim report`` accepts.
 ``marketsim analyze FOLDER``
     The estimates of an experiment that was run, from its logs (``treated`` columns).
+``marketsim study SCENARIO``
+    The study of the standard designs over the planned horizon, on this machine
+    or a Dask cluster (``--dask ADDRESS``), optionally into a results store
+    (``--store DIR``) that a killed or interrupted run resumes (``--resume``).
+``marketsim sweep SCENARIO --values ...``
+    The same designs simulated at several balances (or arrival rates).
+
+Exit codes: 0 finished; 1 the run failed (e.g. workers kept dying, the cluster
+was unreachable); 2 usage error (bad option, scenario file or store; nothing
+ran); 130 interrupted (Ctrl-C): what finished is printed and, with ``--store``,
+kept for ``--resume``.
 """
 
 from __future__ import annotations
@@ -26,6 +37,13 @@ from marketsim.model import Treatment
 from marketsim.model.scenario_file import load_scenario
 from marketsim.model.scenarios import rehearsal_rooms_scenario
 from marketsim.report.calibration import analysis_text, calibrated_scenario, calibration_text
+from marketsim.report.commands import (
+    BUILTIN,
+    EXIT,
+    add_run_options,
+    run_study_command,
+    run_sweep_command,
+)
 from marketsim.report.full_report import write_full_report
 
 REPLICATIONS = 200
@@ -58,12 +76,34 @@ def main(argv: Sequence[str] | None = None) -> int:
     commands.add_parser("scenario-template",
                         help="print the built-in scenario as a file to start from")
     _log_commands(commands)
+    study = commands.add_parser("study", help="study of the standard designs (store, Dask)")
+    add_run_options(study)
+    sweep = commands.add_parser("sweep", help="the designs simulated over balance (store, Dask)")
+    add_run_options(sweep)
+    sweep.add_argument("--values", type=float, nargs="+", required=True,
+                       help="values of the swept parameter, e.g. 0.25 0.5 1 2 4")
+    sweep.add_argument("--parameter", choices=("balance", "arrival_rate"), default="balance",
+                       help="market parameter to sweep (default balance)")
     args = parser.parse_args(argv)
     if args.command == "scenario-template":
         sys.stdout.write(rehearsal_rooms_scenario().to_json())
         return 0
     if args.command in ("calibrate", "analyze"):
         return _run_log_command(args, commands.choices[args.command])
+    if args.command in ("study", "sweep"):
+        command = study if args.command == "study" else sweep
+        try:
+            scenario = (rehearsal_rooms_scenario() if args.scenario == BUILTIN
+                        else load_scenario(args.scenario))
+        except ValueError as error:
+            command.error(str(error))
+        run = run_study_command if args.command == "study" else run_sweep_command
+        code, message = run(scenario, args)
+        if code == EXIT["usage"]:
+            command.error(message)
+        if message:
+            print(message, file=sys.stderr)
+        return code
     command = demo if args.command == "demo" else report
     if args.replications < 2:
         command.error(f"--replications must be a whole number >= 2, got {args.replications}")

@@ -17,6 +17,9 @@ BENCHMARKS = Path(__file__).resolve().parent.parent / "benchmarks"
     ("meanfield_speed.py", ["--repeats", "3"], "Balance sweep, 60 points"),
     ("logging_cost.py", ["--horizon", "100", "--repeats", "1"], "logging on / off ratio"),
     ("calibration_speed.py", ["--sessions", "2e4"], "calibrate:"),
+    ("dask_scaling.py", ["--replications", "4", "--events", "2e4", "--tiny", "40",
+                         "--repeats", "1"], "scheduling overhead per task"),
+    ("store_memory.py", ["--replications", "200"], "peak memory at"),
 ])
 def test_benchmark_script_runs(script, arguments, expected):
     done = subprocess.run([sys.executable, str(BENCHMARKS / script), *arguments],

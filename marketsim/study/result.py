@@ -144,7 +144,7 @@ class StudyResult:
                               columns=["arm", "design", "estimator", "metric"])
         metrics = tuple(asked[study]["metrics"])
         runs = opened.manifest["runs"]
-        last = runs[-1] if runs else {"replications": 0, "elapsed": math.nan, "workers": 0}
+        last = runs[-1] if runs else {"replications": 0}
         requested = int(last["replications"])
         done = sorted(i for i in opened.finished(study, len(labels)) if i < requested)
         if len(done) < 2:
@@ -152,8 +152,8 @@ class StudyResult:
                              f"of study {study}; a summary needs at least 2")
         table = opened.read(study, done, len(labels), VALUE_COLUMNS)
         return summarize(metrics, labels, Replicated.from_table(table, labels, metrics),
-                         requested, len(done) < requested, float(last["elapsed"]),
-                         int(last["workers"]))
+                         requested, len(done) < requested,
+                         float(last.get("elapsed", math.nan)), int(last.get("workers", 0)))
 
     def to_frame(self) -> pd.DataFrame:
         """The summary table (a copy)."""

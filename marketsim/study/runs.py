@@ -106,6 +106,8 @@ def run_studies(studies: Sequence, replications: int, seed: SeedLike, *, kind: s
         roots=tuple((r.entropy, tuple(r.spawn_key), r.pool_size) for r in roots),
         todo=tuple(tuple(i for i in range(count) if i not in done[j])
                    for j in range(len(studies))))
+    if opened is not None:
+        opened.start_run(replications=count, backend=backend)
     began = time.perf_counter()
     interrupted = False
     used = min(workers, max(1, work.total))
@@ -128,6 +130,5 @@ def run_studies(studies: Sequence, replications: int, seed: SeedLike, *, kind: s
         results.append(None if figures is None else summarize(
             study.metrics, rows[j], figures, count, figures.order.size < count, elapsed, used))
     if opened is not None:
-        opened.record_run(replications=count, backend=backend, workers=used,
-                          elapsed=round(elapsed, 3), interrupted=interrupted)
+        opened.end_run(workers=used, elapsed=round(elapsed, 3), interrupted=interrupted)
     return results, interrupted

@@ -186,7 +186,7 @@ class ResultsStore:
                 "seed": self.seed, "package_version": version,
                 "created": _now(), "question": question, "runs": [],
             }
-            _write_atomic(manifest, json.dumps(self.manifest, indent=1, sort_keys=True))
+            self._save()
         for stale in self.path.glob("study-*/*.tmp-*"):  # a run killed mid-write
             stale.unlink(missing_ok=True)
 
@@ -305,11 +305,19 @@ class ResultsStore:
                              f"{stop - 1}, found {len(table)}")
         return table
 
-    def record_run(self, **facts: object) -> None:
-        """Add one run's facts (requested replications, backend, time) to the manifest."""
-        self.manifest["runs"].append({"finished": _now(), **facts})
-        _write_atomic(self.path / MANIFEST,
-                      json.dumps(self.manifest, indent=1, sort_keys=True))
+    def start_run(self, **facts: object) -> None:
+        """Log a run's start (replications asked for, backend) in the manifest, so a
+        run killed before it ends can be resumed with the same count."""
+        self.manifest["runs"].append({"started": _now(), **facts})
+        self._save()
+
+    def end_run(self, **facts: object) -> None:
+        """Add the facts of the end of the run (time, interruption) to its log entry."""
+        self.manifest["runs"][-1].update({"finished": _now(), **facts})
+        self._save()
+
+    def _save(self) -> None:
+        _write_atomic(self.path / MANIFEST, json.dumps(self.manifest, indent=1, sort_keys=True))
 
 
 def read_manifest(path: str | os.PathLike) -> dict:
