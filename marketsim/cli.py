@@ -19,7 +19,7 @@
 ``marketsim sweep SCENARIO --values ...``
     The same designs simulated at several balances (or arrival rates).
 
-Exit codes: 0 finished; 1 the run failed (e.g. workers kept dying, the cluster
+Exit codes (study and sweep): 0 finished; 1 the run failed (e.g. workers kept dying, the cluster
 was unreachable); 2 usage error (bad option, scenario file or store; nothing
 ran); 130 interrupted (Ctrl-C): what finished is printed and, with ``--store``,
 kept for ``--resume``.

@@ -14,10 +14,9 @@ from pathlib import Path
 
 import pandas as pd
 
-from marketsim.designs import CustomerSide, ListingSide, TwoSided, TwoSidedFollowingBalance
 from marketsim.model.scenario_file import Scenario
 from marketsim.planning import sweep
-from marketsim.report.full_report import study_arms
+from marketsim.report.full_report import STANDARD_DESIGNS
 from marketsim.study import Study
 from marketsim.study.store import MANIFEST, read_manifest
 
@@ -86,7 +85,7 @@ def run_study_command(scenario: Scenario, args: argparse.Namespace) -> tuple[int
     """``marketsim study``: the standard designs over the scenario's planned horizon."""
     try:
         options = run_options(args)
-        study = Study(scenario.market, scenario.treatment, study_arms(scenario),
+        study = Study(scenario.market, scenario.treatment, list(STANDARD_DESIGNS),
                       horizon=scenario.horizon, burn_in=scenario.burn_in)
     except ValueError as error:
         return EXIT["usage"], str(error)
@@ -116,7 +115,7 @@ def run_sweep_command(scenario: Scenario, args: argparse.Namespace) -> tuple[int
     except ValueError as error:
         return EXIT["usage"], str(error)
     count = options.pop("replications")
-    arms = [CustomerSide(0.5), ListingSide(0.5), TwoSided(0.5, 0.5), TwoSidedFollowingBalance()]
+    arms = list(STANDARD_DESIGNS)
     print(f"Sweep of {scenario.name} over {args.parameter}: {len(args.values)} points x "
           f"{count} replications")
     try:
