@@ -6,6 +6,7 @@ May import: model, designs (and the shared helpers). The numba kernels are priva
 
 from marketsim.engine.cells import START_OPTIONS, MarketCells, build_cells
 from marketsim.engine.ledger import Ledger
-from marketsim.engine.runner import run_cells
+from marketsim.engine.runner import SimulationInterrupted, SliceProgress, run_cells
 
-__all__ = ["MarketCells", "build_cells", "Ledger", "run_cells", "START_OPTIONS"]
+__all__ = ["MarketCells", "build_cells", "Ledger", "run_cells", "START_OPTIONS",
+           "SimulationInterrupted", "SliceProgress"]

@@ -21,6 +21,10 @@ SLICE_EVENTS = 2**20
 """Events per kernel call (about a tenth of a second): the run returns to Python
 between slices, where Ctrl-C, progress and ``on_slice`` take effect."""
 
+FIRST_SLICE_EVENTS = 2**14
+"""Events of each of the first two slices: short, so that ``on_slice`` can time the
+second one (the first may include compiling) and estimate the run's length early."""
+
 
 @dataclass(frozen=True)
 class SliceProgress:
@@ -90,7 +94,13 @@ def run_cells(
         Ctrl-C.
     on_slice : callable, optional
         Called with a :class:`SliceProgress` after every slice that does not
-        end the run.
+        end the run (the first two slices are of :data:`FIRST_SLICE_EVENTS`).
+
+    Raises
+    ------
+    SimulationInterrupted
+        On Ctrl-C (a ``KeyboardInterrupt``), within about a slice; it carries
+        the part of the window simulated.
 
     Returns
     -------
@@ -110,16 +120,46 @@ def run_cells(
     end = burn_in + horizon
     run = KernelRun(cells, cells.starting_counts(start), burn_in=burn_in, end=end,
                     n_bins=n_bins, streams=engine_streams(seed), engine=engine)
-    while not run.step(slice_events):
-        if on_slice is not None:
-            on_slice(SliceProgress(time=run.time, end=end, events=run.events,
-                                   engine=run.engine))
+    size, slices = min(slice_events, FIRST_SLICE_EVENTS), 0
+    try:
+        while not run.step(size):
+            slices += 1
+            size = slice_events if slices >= 2 else size
+            if on_slice is not None:
+                on_slice(SliceProgress(time=run.time, end=end, events=run.events,
+                                       engine=run.engine))
+    except KeyboardInterrupt:
+        reached = min(run.time, end)
+        partial = None
+        if reached > burn_in:
+            partial = _ledger(run, cells, reached - burn_in, n_bins, horizon,
+                              np.full(n_listing, np.nan))
+        raise SimulationInterrupted(
+            f"simulation interrupted at time {reached:.6g} of {end:.6g} ({run.events:,} "
+            "events); the error's .ledger holds the part of the window simulated"
+            + ("" if partial else " (None: the window had not started)"), partial) from None
+    return _ledger(run, cells, horizon, n_bins, horizon, run.available_time / horizon)
+
+
+class SimulationInterrupted(KeyboardInterrupt):
+    """Ctrl-C stopped a run; ``ledger`` is the part of the measurement window simulated
+    (its ``window`` is that part's length, ``mean_available`` is NaN), or None if the
+    window had not started. A study catches it like any Ctrl-C and keeps its finished
+    replications."""
+
+    def __init__(self, message: str, ledger: Ledger | None) -> None:
+        super().__init__(message)
+        self.ledger = ledger
+
+
+def _ledger(run: KernelRun, cells: MarketCells, window: float, n_bins: int, horizon: float,
+            mean_available: np.ndarray) -> Ledger:
     return Ledger(
         cells=cells,
         bookings=run.bookings,
         arrivals=run.arrivals,
-        window=horizon,
-        mean_available=run.available_time / horizon,
+        window=window,
+        mean_available=mean_available,
         final_available=run.available,
         events=run.events,
         bin_edges=np.linspace(0.0, horizon, n_bins + 1) if n_bins else np.empty(0),
@@ -129,4 +169,5 @@ def run_cells(
     )
 
 
-__all__ = ["run_cells", "MAX_BIN_BYTES", "SLICE_EVENTS", "SliceProgress"]
+__all__ = ["run_cells", "MAX_BIN_BYTES", "SLICE_EVENTS", "FIRST_SLICE_EVENTS", "SliceProgress",
+           "SimulationInterrupted"]

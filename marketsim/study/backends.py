@@ -71,10 +71,13 @@ class Work:
 
 
 def run(work: Work, deliver: Deliver, *, backend: str = "local", workers: int = 1,
-        client: object = None, progress: bool = True, desc: str = "study") -> int:
+        client: object = None, progress: bool = True, desc: str = "study",
+        check: Callable[[float, object, int, int], None] | None = None) -> int:
     """Run every replication of ``work``, calling ``deliver(study, indices, outcomes)``
     in this process as each chunk finishes; return the number of workers used
-    (Dask: the cluster's threads).
+    (Dask: the cluster's threads). ``check(seconds, outcome, total, workers)``, if
+    given, sees the first replication (run here and timed) before the others start,
+    and may refuse the run by raising.
 
     Raises
     ------
@@ -88,9 +91,9 @@ def run(work: Work, deliver: Deliver, *, backend: str = "local", workers: int = 
     job = next(j for j, indices in enumerate(work.todo) if indices)
     first = work.todo[job][0]
     began = time.perf_counter()  # one replication here, to size the chunks
-    deliver(job, range(first, first + 1),
-            [work.replicate(work.plans[job], work.roots[job], first)])
+    outcome = work.replicate(work.plans[job], work.roots[job], first)
     seconds = time.perf_counter() - began
+    deliver(job, range(first, first + 1), [outcome])
     todo = list(work.todo)
     todo[job] = todo[job][1:]
     owned = None
@@ -98,6 +101,8 @@ def run(work: Work, deliver: Deliver, *, backend: str = "local", workers: int = 
         if backend == "dask":
             client, owned = dask_client(client)
             workers = max(1, sum(w["nthreads"] for w in _workers(client).values()))
+        if check is not None:
+            check(seconds, outcome, work.total, workers)
         chunks = make_chunks(todo, workers, seconds)
         bar = _progress_bar(work.total, progress, desc, initial=1)
         try:

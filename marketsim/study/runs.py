@@ -17,6 +17,7 @@ import numpy as np
 from marketsim import _validation as check
 from marketsim.randomness import SeedLike, seed_sequence, spawn
 from marketsim.study import backends, replication
+from marketsim.study.guards import limits, refuse
 from marketsim.study.replication import VALUE_COLUMNS, Replicated
 from marketsim.study.result import StudyResult, summarize
 from marketsim.study.store import MANIFEST, ResultsStore, describe, read_manifest, seed_from_record
@@ -48,7 +49,8 @@ def open_store(store: object, *, kind: str, question: dict, seed: SeedLike
 def run_studies(studies: Sequence, replications: int, seed: SeedLike, *, kind: str,
                 split: bool, backend: str = "local", workers: int = 1, client: object = None,
                 store: object = None, progress: bool = True, desc: str = "study",
-                asked: dict | None = None) -> tuple[list[StudyResult | None], bool]:
+                asked: dict | None = None, max_seconds: float | None = None,
+                max_events: int | None = None) -> tuple[list[StudyResult | None], bool]:
     """Run ``replications`` of every study; see the module docstring.
 
     Parameters
@@ -67,6 +69,9 @@ def run_studies(studies: Sequence, replications: int, seed: SeedLike, *, kind: s
         Label of the progress bar.
     asked : dict, optional
         More of the question (e.g. a sweep's values), recorded in the store.
+    max_seconds, max_events : float, int, optional
+        Refuse the run (``ValueError`` with the estimate) if, judged from its
+        first replication, the rest would take longer or simulate more events.
 
     Returns
     -------
@@ -85,6 +90,13 @@ def run_studies(studies: Sequence, replications: int, seed: SeedLike, *, kind: s
                          f"client={client!r}")
     if backend == "dask" and client is None:
         backends.dask_client(client)  # the error that says what client must be
+    max_seconds, max_events = limits(max_seconds, max_events)
+
+    def check_estimate(seconds: float, outcome, total: int, used: int) -> None:
+        refuse(f"this {kind}", outcome.events * total, seconds * total / used,
+               f"estimated from its first replication ({outcome.events:,} events in "
+               f"{seconds:.3g} s) on {used} worker(s)", max_seconds, max_events)
+
     question = {"studies": [study_question(s) for s in studies], **(asked or {})}
     opened, root = open_store(store, kind=kind, question=question, seed=seed)
     roots = spawn(root, len(studies)) if split else [root]
@@ -113,7 +125,7 @@ def run_studies(studies: Sequence, replications: int, seed: SeedLike, *, kind: s
     used = min(workers, max(1, work.total))
     try:
         used = backends.run(work, deliver, backend=backend, workers=used, client=client,
-                            progress=progress, desc=desc)
+                            progress=progress, desc=desc, check=check_estimate)
     except KeyboardInterrupt:
         interrupted = True
     elapsed = time.perf_counter() - began

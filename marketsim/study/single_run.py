@@ -18,6 +18,7 @@ from marketsim.engine.logs import PlatformLog, run_logged_cells
 from marketsim.meanfield import steady_state
 from marketsim.model import Market, Treatment
 from marketsim.randomness import SeedLike
+from marketsim.study.guards import SliceGuard
 
 
 def simulate(
@@ -30,6 +31,9 @@ def simulate(
     seed: SeedLike = None,
     start: str | ArrayLike = "empty",
     bins: int | None = None,
+    max_seconds: float | None = None,
+    max_events: int | None = None,
+    progress: bool = True,
 ) -> Ledger:
     """Simulate the finite market exactly and record the measurement window.
 
@@ -80,10 +84,27 @@ def simulate(
         of the cycle's start: keep a burn-in of at least one period.
     bins : int, optional
         Also count bookings and arrivals in this many equal time bins of the window.
+    max_seconds, max_events : float, int, optional
+        Refuse a run estimated to take longer or simulate more events: the
+        estimate comes from a short timed slice of events at the start (events
+        extrapolated from the simulated time reached), and the ``ValueError``
+        gives it. Rough: a run from an empty start is busier at first.
+    progress : bool
+        Show a progress bar with that estimate if the run lasts over a second.
 
     Returns
     -------
     Ledger
+
+    Raises
+    ------
+    marketsim.engine.SimulationInterrupted
+        On Ctrl-C, within about a tenth of a second at any market size (the
+        engine returns to Python between slices of events). It is a
+        ``KeyboardInterrupt`` whose ``ledger`` holds the part of the window
+        simulated so far (``window`` is that part's length; ``mean_available``
+        is NaN), or None if the window had not started: a partial ledger is
+        never returned as if it were whole.
 
     Examples
     --------
@@ -98,8 +119,13 @@ def simulate(
     if note is not None:
         warnings.warn(f"simulate: {design!r} on {market.n_listings} listings: {note}",
                       RuntimeWarning, stacklevel=2)
-    return run_cells(cells, horizon=horizon, burn_in=burn_in, seed=seed,
-                     start=starting_availability(cells, start), bins=bins)
+    guard = SliceGuard(max_seconds, max_events, progress)
+    try:
+        return run_cells(cells, horizon=horizon, burn_in=burn_in, seed=seed,
+                         start=starting_availability(cells, start), bins=bins,
+                         on_slice=guard)
+    finally:
+        guard.close()
 
 
 def simulate_log(

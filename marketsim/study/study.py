@@ -154,6 +154,8 @@ class Study:
         backend: str = "local",
         client: object = None,
         store: str | os.PathLike | None = None,
+        max_seconds: float | None = None,
+        max_events: int | None = None,
     ) -> StudyResult:
         """Run the replications and summarize them.
 
@@ -179,6 +181,10 @@ class Study:
             into a store that already holds some replications of this study
             runs only the missing ones. A store made for another study or seed
             is refused.
+        max_seconds, max_events : float, int, optional
+            Refuse the run if, judged from its first replication (run and timed
+            before the others), the whole would take longer or simulate more
+            events; the ``ValueError`` gives the estimate.
 
         Returns
         -------
@@ -205,7 +211,8 @@ class Study:
         """
         results, interrupted = run_studies(
             [self], replications, seed, kind="study", split=False, backend=backend,
-            workers=workers, client=client, store=store, progress=progress)
+            workers=workers, client=client, store=store, progress=progress,
+            max_seconds=max_seconds, max_events=max_events)
         result = results[0]
         if interrupted:
             if result is None:

@@ -1,0 +1,90 @@
+"""Runaway guards: an estimate from a short timed slice refuses runs over max_seconds or
+max_events; Ctrl-C stops a run of any size within about a second and keeps what finished."""
+
+from __future__ import annotations
+
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+import marketsim as ms
+from marketsim.engine import SimulationInterrupted, build_cells, run_cells
+
+ROOT = Path(__file__).resolve().parent.parent
+
+BIG = """
+import sys
+import marketsim as ms
+from marketsim.engine import SimulationInterrupted
+market = ms.scenarios.rehearsal_rooms().scaled(250_000)  # 10,000,000 listings
+print(market.n_listings, flush=True)
+try:
+    ms.simulate(market, horizon=1000.0, burn_in=0.01, seed=1, progress=False)
+except SimulationInterrupted as stopped:
+    print("kept", stopped.ledger.events, stopped.ledger.window, int(stopped.ledger.arrivals.sum()))
+    sys.exit(130)
+"""
+
+
+def test_ctrl_c_stops_a_ten_million_listing_run_within_two_seconds_keeping_the_window():
+    process = subprocess.Popen([sys.executable, "-c", BIG], cwd=ROOT, text=True,
+                               stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    assert process.stdout.readline().strip() == "10000000"
+    time.sleep(1.5)  # well into the run (it would take minutes)
+    assert process.poll() is None
+    sent = time.monotonic()
+    os.kill(process.pid, signal.SIGINT)
+    out, errors = process.communicate(timeout=30)
+    assert time.monotonic() - sent < 2.0
+    assert process.returncode == 130, errors[-2000:]
+    _, events, window, arrivals = out.split()
+    assert int(events) > 0 and 0.0 < float(window) < 1000.0 and int(arrivals) > 0
+
+
+def test_an_interrupted_run_hands_back_the_part_of_the_window_simulated():
+    market = ms.scenarios.rehearsal_rooms().scaled(50)
+    cells = build_cells(market)
+    calls = []
+
+    def interrupt_on_the_third_slice(state):
+        calls.append(state.events)
+        if len(calls) == 3:
+            raise KeyboardInterrupt
+
+    with pytest.raises(SimulationInterrupted) as stopped:
+        run_cells(cells, horizon=500.0, burn_in=1.0, seed=2, slice_events=2**15,
+                  on_slice=interrupt_on_the_third_slice)
+    partial = stopped.value.ledger
+    assert isinstance(stopped.value, KeyboardInterrupt)
+    assert 0.0 < partial.window < 500.0 and partial.events == calls[-1]
+    assert np.isnan(partial.mean_available).all()  # marked: not a whole window
+    whole = run_cells(cells, horizon=500.0, burn_in=1.0, seed=2)
+    assert (partial.bookings <= whole.bookings).all() and partial.arrivals.sum() > 0
+
+
+def test_simulate_refuses_a_run_over_its_limits_with_the_estimate():
+    market = ms.scenarios.rehearsal_rooms().scaled(1000)  # about 600,000 events per hour
+    with pytest.raises(ValueError, match=r"would simulate about [\d,]+ events .* timed slice "
+                                         r"of [\d,]+ events: more than max_events=1,000,000"):
+        ms.simulate(market, horizon=100.0, seed=1, max_events=1_000_000)
+    with pytest.raises(ValueError, match=r"would take about .* s, .* max_seconds=0.01"):
+        ms.simulate(market, horizon=100.0, seed=1, max_seconds=0.01)
+    with pytest.raises(ValueError, match="max_events must be a whole number >= 1"):
+        ms.simulate(market, horizon=1.0, seed=1, max_events=0)
+    ms.simulate(market, horizon=0.5, seed=1, max_events=10**7)  # within the limit: runs
+
+
+def test_a_study_over_its_limits_is_refused_after_one_replication():
+    study = ms.Study(ms.scenarios.rehearsal_rooms(), ms.scenarios.instant_confirmation(),
+                     [ms.CustomerSide(0.5)], horizon=20.0)
+    with pytest.raises(ValueError, match=r"this study would simulate about [\d,]+ events .* "
+                                         r"first replication .* max_events=1,000"):
+        study.run(1000, seed=1, progress=False, max_events=1000)
+    with pytest.raises(ValueError, match="max_seconds=1e-06"):
+        study.run(1000, seed=1, progress=False, max_seconds=1e-6)
