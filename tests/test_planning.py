@@ -284,6 +284,7 @@ def test_ctrl_c_during_a_simulation_sweep_keeps_the_points_finished(monkeypatch)
     assert table["replications"].tolist() == [4, 3]
 
 
+@pytest.mark.filterwarnings("ignore:The global treatment effect is exactly 0")
 def test_runner_up_note_uses_the_paired_monte_carlo_error():
     """Two estimators on the same ledgers, one the other times 1.1, under a null
     treatment (the global worlds share their random numbers, so every replication's
@@ -393,6 +394,7 @@ def test_plan_report_gives_long_horizons_in_larger_units():
     assert "years)" in report and "measured window after the burn-in" in report
 
 
+@pytest.mark.filterwarnings("ignore:The global treatment effect is exactly 0")
 def test_a_feature_without_effect_is_rarely_significant():
     """Why power_table has no "false-positive rate" that keeps the bias: a feature that
     changes nothing creates no interference, so every replication's truth is 0 and the

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 import pickle
+import sys
 import warnings
 
 import numpy as np
@@ -325,14 +326,17 @@ def test_summary_has_one_row_per_arm_estimator_metric_and_documented_columns():
 
 def test_null_treatment_has_zero_truth_and_no_relative_bias():
     """With common random numbers the two global worlds of a null treatment are the
-    same run, so the truth is exactly 0 and relative bias is undefined."""
+    same run, so the truth is exactly 0 and relative bias is undefined: the run says why
+    (a warning and the caveats), while bias and RMSE stay defined."""
     study = ms.Study(ms.scenarios.rehearsal_rooms(), ms.Treatment(), [ms.CustomerSide(0.5)],
                      horizon=20.0)
-    result = study.run(4, seed=1, progress=False)
+    with pytest.warns(RuntimeWarning, match="exactly 0 for bookings .* undefined and shown as NaN"):
+        result = study.run(4, seed=1, progress=False)
     assert result.truth["value"].tolist() == [0.0]
     assert result.truth["mc_se"].tolist() == [0.0]
     assert np.isnan(result.summary["relative_bias"]).all()
-    assert "relative bias is undefined" in result.caveats
+    assert "undefined and shown as NaN" in result.caveats
+    assert result.summary["rmse"].notna().all()
 
 
 def test_custom_estimators_are_scored_too():
@@ -505,3 +509,27 @@ def test_too_few_treated_listings_are_explained():
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         ms.simulate(market, feature, ms.ListingSide(0.0167), horizon=5.0, seed=1)
+
+
+def test_progress_bars_only_where_they_can_redraw(monkeypatch):
+    """No text bar when stderr is not a terminal (a notebook without widgets, a log, CI),
+    where it would print line after line; the text bar in a terminal; tqdm's widget bar
+    in a notebook when ipywidgets is installed, none without it."""
+    import io
+
+    from tqdm import tqdm
+
+    monkeypatch.setattr(backends.sys, "stderr", io.StringIO())
+    assert backends.progress_bar_class() is None
+    assert backends._progress_bar(10, True, "x").disable
+
+    class Terminal(io.StringIO):
+        def isatty(self):
+            return True
+
+    monkeypatch.setattr(backends.sys, "stderr", Terminal())
+    assert backends.progress_bar_class() is tqdm
+    monkeypatch.setattr(backends, "_in_notebook", lambda: True)
+    monkeypatch.setitem(sys.modules, "ipywidgets", None)  # not installed
+    assert backends.progress_bar_class() is None
+

@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import multiprocessing
 import signal
+import sys
 import time
 import warnings
 from collections.abc import Callable, Sequence
@@ -153,12 +154,46 @@ def _runs(indices: Sequence[int]) -> list[tuple[int, int]]:
     return runs
 
 
+def _in_notebook() -> bool:
+    """Whether we run in a Jupyter kernel (IPython with a kernel attached)."""
+    shell = sys.modules.get("IPython")
+    if shell is None:
+        return False
+    ip = shell.get_ipython() if hasattr(shell, "get_ipython") else None
+    return ip is not None and "IPKernelApp" in getattr(ip, "config", {})
+
+
+def progress_bar_class():
+    """The progress bar that fits where we run, or None for no bar.
+
+    A notebook gets tqdm's widget bar (when ipywidgets is installed; without it a
+    text bar would print line after line, so there is none); a terminal gets the
+    text bar; anything else (a log file, a pipe, CI) gets none.
+    """
+    if _in_notebook():
+        try:
+            import ipywidgets  # noqa: F401
+            from tqdm.notebook import tqdm
+        except ImportError:
+            return None
+        return tqdm
+    if sys.stderr is not None and sys.stderr.isatty():
+        from tqdm import tqdm
+
+        return tqdm
+    return None
+
+
 def _progress_bar(total: int, enabled: bool, desc: str, initial: int = 0):
-    """A tqdm bar that shows up only if the run lasts more than a second."""
+    """A bar that shows up only if the run lasts more than a second, and only where it can
+    redraw itself (:func:`progress_bar_class`)."""
     from tqdm import tqdm
 
-    return tqdm(total=total, initial=initial, disable=not enabled, unit="replication",
-                desc=desc, delay=1.0, leave=False)
+    bar = progress_bar_class() if enabled else None
+    if bar is None:
+        return tqdm(total=total, initial=initial, disable=True)
+    return bar(total=total, initial=initial, unit="replication", desc=desc, delay=1.0,
+               leave=False)
 
 
 # --------------------------------------------------------------------------- this process

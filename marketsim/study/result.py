@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 import os
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -109,8 +110,7 @@ class StudyResult:
                          f"{self.requested} replications are summarized.")
         zero = self.truth.loc[self.truth["value"] == 0.0, "metric"].tolist()
         if zero:
-            notes.append(f"The global effect is exactly 0 for {', '.join(zero)}: relative "
-                         "bias is undefined (NaN) there.")
+            notes.append(zero_effect_note(zero))
         return " ".join(notes)
 
     @classmethod
@@ -205,6 +205,14 @@ class StudyResult:
         )
 
 
+def zero_effect_note(metrics: list[str]) -> str:
+    """Why relative figures are NaN when the global effect is exactly 0."""
+    return (f"The global treatment effect is exactly 0 for {', '.join(metrics)} (the "
+            "treatment changes nothing there: no customer's choice, or nobody books), so "
+            "relative bias, bias / effect, is undefined and shown as NaN; bias, sd, RMSE and "
+            "coverage are still in the metric's own units.")
+
+
 def summarize(metrics: tuple[str, ...], labels: pd.DataFrame, figures: Replicated,
               requested: int, interrupted: bool, elapsed: float,
               workers: int) -> StudyResult:
@@ -229,6 +237,9 @@ def summarize(metrics: tuple[str, ...], labels: pd.DataFrame, figures: Replicate
             "replications": n,
         })
     truth = pd.DataFrame(truth_rows)
+    zero = truth.loc[truth["value"] == 0.0, "metric"].tolist()
+    if zero:
+        warnings.warn(zero_effect_note(zero), RuntimeWarning, stacklevel=3)
 
     metric_index = {metric: m for m, metric in enumerate(metrics)}
     rows = []
