@@ -6,6 +6,10 @@
     The same on a scenario file (see :mod:`marketsim.model.scenario_file`).
 ``marketsim scenario-template``
     Print the built-in scenario as a scenario file to start from.
+``marketsim describe``
+    What every key of a scenario file means.
+``marketsim --version``
+    The installed version.
 ``marketsim calibrate FOLDER``
     Calibrate a market from platform logs (listings, stays, sessions and optionally
     impressions as .csv or .parquet files): print the parameters and fit checks and
@@ -32,8 +36,10 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
+from marketsim import __version__
 from marketsim.calibration import analyze, calibrate, read_log_folder
 from marketsim.model import Treatment
+from marketsim.model.plan_spec import describe_keys
 from marketsim.model.scenario_file import load_scenario
 from marketsim.model.scenarios import rehearsal_rooms_scenario
 from marketsim.report.calibration import analysis_text, calibrated_scenario, calibration_text
@@ -44,16 +50,17 @@ from marketsim.report.commands import (
     run_study_command,
     run_sweep_command,
 )
-from marketsim.report.full_report import write_full_report
+from marketsim.report.full_report import DEFAULT_REPLICATIONS, write_full_report
 
-REPLICATIONS = 200
+REPLICATIONS = DEFAULT_REPLICATIONS
 SEED = 2026
 OUT = "marketsim-report"
 
 
 def _run_options(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--replications", type=int, default=REPLICATIONS,
-                        help=f"Monte Carlo replications, >= 2 (default {REPLICATIONS})")
+    parser.add_argument("--replications", type=int, default=None,
+                        help="Monte Carlo replications of every study, >= 2 (default: the "
+                             f"scenario file's experiment.replications, else {REPLICATIONS})")
     parser.add_argument("--seed", type=int, default=SEED, help=f"random seed (default {SEED})")
     parser.add_argument("--out", default=OUT,
                         help=f"folder for the report and its figures (default ./{OUT})")
@@ -65,8 +72,12 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``marketsim`` command."""
     parser = argparse.ArgumentParser(
         prog="marketsim",
-        description="Bias and noise of A/B tests on two-sided marketplaces.",
+        description="Bias and noise of A/B tests on two-sided marketplaces. The horizon "
+                    "of an experiment is its measured window, after a burn-in that is "
+                    "simulated but not measured; horizons are in the scenario's time unit "
+                    "(long ones also in days, weeks or years).",
     )
+    parser.add_argument("--version", action="version", version=f"marketsim {__version__}")
     commands = parser.add_subparsers(dest="command", required=True)
     demo = commands.add_parser("demo", help="the whole job on the built-in invented scenario")
     _run_options(demo)
@@ -75,6 +86,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     _run_options(report)
     commands.add_parser("scenario-template",
                         help="print the built-in scenario as a file to start from")
+    commands.add_parser("describe", help="what every key of a scenario file means")
     _log_commands(commands)
     study = commands.add_parser("study", help="study of the standard designs (store, Dask)")
     add_run_options(study)
@@ -87,6 +99,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     args = parser.parse_args(argv)
     if args.command == "scenario-template":
         sys.stdout.write(rehearsal_rooms_scenario().to_json())
+        return 0
+    if args.command == "describe":
+        print(describe_keys())
         return 0
     if args.command in ("calibrate", "analyze"):
         return _run_log_command(args, commands.choices[args.command])
@@ -105,7 +120,7 @@ def main(argv: Sequence[str] | None = None) -> int:
             print(message, file=sys.stderr)
         return code
     command = demo if args.command == "demo" else report
-    if args.replications < 2:
+    if args.replications is not None and args.replications < 2:
         command.error(f"--replications must be a whole number >= 2, got {args.replications}")
     if args.workers is not None and args.workers < 1:
         command.error(f"--workers must be a whole number >= 1, got {args.workers}")

@@ -159,3 +159,65 @@ def test_report_that_cannot_run_its_designs_is_a_usage_error(capsys, tmp_path):
               "--out", str(tmp_path / "out")])
     err = capsys.readouterr().err
     assert "rounding left no treated listing" in err and "at least 0.5 treats one" in err
+
+
+def test_version_and_describe(capsys):
+    """--version prints the package's version; describe explains every key a scenario
+    file accepts (a key added to the file format without a word fails here)."""
+    import marketsim
+    from marketsim.model import scenario_file
+    from marketsim.model.plan_spec import KEY_HELP
+
+    with pytest.raises(SystemExit) as stop:
+        main(["--version"])
+    assert stop.value.code == 0
+    assert capsys.readouterr().out.strip() == f"marketsim {marketsim.__version__}"
+    accepted = {key for key in scenario_file.TOP_KEYS if key not in ("market", "treatment",
+                                                                       "experiment")}
+    for section, keys in (("market", scenario_file.MARKET_KEYS),
+                          ("treatment", scenario_file.TREATMENT_KEYS),
+                          ("experiment", scenario_file.EXPERIMENT_KEYS)):
+        accepted |= {f"{section}.{key}" for key in keys}
+    assert set(KEY_HELP) == accepted
+    assert main(["describe"]) == 0
+    out = capsys.readouterr().out
+    assert "experiment.horizon" in out and "measured window, after the burn-in" in out
+
+
+def test_scenario_file_chooses_designs_target_and_replications(capsys, tmp_path):
+    data = rehearsal_rooms_scenario().to_dict()
+    data["experiment"].update(
+        horizon=20.0, burn_in=5.0, replications=3,
+        designs=[{"design": "customer-side", "treated": 0.25},
+                 {"design": "two-sided-following-balance"}],
+        target={"target_relative_se": 0.1})
+    path = tmp_path / "mine.json"
+    path.write_text(json.dumps(data))
+    scenario = load_scenario(path)
+    assert scenario.replications == 3 and scenario.target == ("target_relative_se", 0.1)
+    assert scenario_from_dict(scenario.to_dict()).designs == scenario.designs
+    assert main(["report", str(path), "--workers", "1", "--out", str(tmp_path / "out")]) == 0
+    out = capsys.readouterr().out
+    assert "3 replications" in out
+    report = (tmp_path / "out" / "report.md").read_text()
+    choice = report.split("## 3.")[1]
+    ranked = set(re.findall(r"^\| \d+ \| ([^|]*?) \|", choice, re.M))
+    assert ranked == {"customer-side (a_C=0.25)", "two-sided (follows balance)"}
+    assert "standard deviation of the estimate 0.1 of the effect" in choice
+
+
+@pytest.mark.parametrize("experiment, message", [
+    ({"designs": [{"design": "switchback"}]}, "experiment.designs[0].design must be one of"),
+    ({"designs": [{"design": "listing-side", "listings": 0.5}]},
+     "experiment.designs[0] has an unknown key 'listings'"),
+    ({"designs": [{"design": "two-sided", "customers": 1.5}]},
+     "experiment.designs[0].customers must be a finite number in (0, 1)"),
+    ({"target": {"target_se": 0.1, "target_rmse": 0.2}}, "experiment.target must be an object"),
+    ({"target": {"power": 0.8}}, "experiment.target must name one of"),
+    ({"replications": 1}, "experiment.replications must be a whole number >= 2"),
+])
+def test_planning_keys_of_a_scenario_file_are_checked(experiment, message):
+    data = rehearsal_rooms_scenario().to_dict()
+    data["experiment"].update(experiment)
+    with pytest.raises(ValueError, match=re.escape(message)):
+        scenario_from_dict(data)

@@ -15,7 +15,10 @@ The command line reads these (``marketsim report my_market.json``);
 of :class:`marketsim.Treatment`; ``experiment`` says how long the planned test
 runs (``horizon``, in ``time_unit``), how long the simulated market warms up
 first (``burn_in``) and the smallest effect on bookings per ``time_unit`` worth
-detecting (``minimum_effect``).
+detecting (``minimum_effect``); optionally the candidate ``designs``, the ``target``
+of the horizon plan and the number of ``replications``
+(:mod:`marketsim.model.plan_spec`). ``marketsim describe`` prints what every key
+means.
 
 Two optional market keys describe markets as they are: ``busy_time``, one
 shape for every listing type or a list of one per type (``{"family":
@@ -32,7 +35,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from marketsim import _validation as check
-from marketsim.model import Market, Treatment
+from marketsim.model import Market, Treatment, plan_spec
 from marketsim.model import busy_time as busy_time_shapes
 from marketsim.model.demand import DemandProfile
 
@@ -40,7 +43,7 @@ MARKET_KEYS = ("listing_counts", "mean_busy_time", "arrival_rate", "customer_sha
                "consideration", "utility", "outside_utility", "listing_types",
                "customer_types", "price", "busy_time", "demand")
 TREATMENT_KEYS = ("utility_shift", "consideration_factor", "outside_utility_shift")
-EXPERIMENT_KEYS = ("horizon", "burn_in", "minimum_effect")
+EXPERIMENT_KEYS = ("horizon", "burn_in", "minimum_effect", "designs", "target", "replications")
 TOP_KEYS = ("name", "time_unit", "market", "treatment", "experiment")
 
 
@@ -63,6 +66,14 @@ class Scenario:
         Smallest change in bookings per time unit worth detecting, > 0.
     time_unit : str
         Name of the time unit of every rate and time (e.g. ``"hour"``).
+    designs : tuple of dict, optional
+        Candidate designs as plain specs (:mod:`marketsim.model.plan_spec`);
+        None: the standard grid.
+    target : (str, float), optional
+        What the horizon plan sizes for, a ``plan_horizon`` target name and its
+        value; None: ``minimum_effect``.
+    replications : int, optional
+        Monte Carlo replications of every study (None: the command line's default).
     """
 
     name: str
@@ -72,10 +83,19 @@ class Scenario:
     burn_in: float
     minimum_effect: float
     time_unit: str = "time unit"
+    designs: tuple[dict, ...] | None = None
+    target: tuple[str, float] | None = None
+    replications: int | None = None
 
     def __post_init__(self) -> None:
         check.window(self.horizon, self.burn_in)
         check.number("minimum_effect", self.minimum_effect, low=0.0, low_open=True)
+        if self.designs is not None:
+            object.__setattr__(self, "designs", plan_spec.check_designs(list(self.designs)))
+        if self.target is not None:
+            object.__setattr__(self, "target", plan_spec.check_target(dict([self.target])))
+        if self.replications is not None:
+            check.whole_number("replications", self.replications, low=2)
         for name in ("name", "time_unit"):
             value = getattr(self, name)
             if not isinstance(value, str) or not value.strip():
@@ -110,9 +130,19 @@ class Scenario:
             "time_unit": self.time_unit,
             "market": market_data,
             "treatment": treatment,
-            "experiment": {"horizon": self.horizon, "burn_in": self.burn_in,
-                           "minimum_effect": self.minimum_effect},
+            "experiment": self._experiment(),
         }
+
+    def _experiment(self) -> dict:
+        experiment = {"horizon": self.horizon, "burn_in": self.burn_in,
+                      "minimum_effect": self.minimum_effect}
+        if self.designs is not None:
+            experiment["designs"] = [dict(spec) for spec in self.designs]
+        if self.target is not None:
+            experiment["target"] = dict([self.target])
+        if self.replications is not None:
+            experiment["replications"] = self.replications
+        return experiment
 
     def to_json(self) -> str:
         """The scenario file's text."""
@@ -212,6 +242,10 @@ def scenario_from_dict(data: object) -> Scenario:
         burn_in=experiment.get("burn_in", 0.0),
         minimum_effect=experiment["minimum_effect"],
         time_unit=section.get("time_unit", "time unit"),
+        designs=experiment.get("designs"),
+        target=(plan_spec.check_target(experiment["target"]) if "target" in experiment
+                else None),
+        replications=experiment.get("replications"),
     ))
 
 

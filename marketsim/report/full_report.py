@@ -27,6 +27,9 @@ from marketsim.report.markdown import Report
 from marketsim.report.wording import coverage_sentence
 from marketsim.study import CAVEAT, Arm, Study, StudyResult, default_workers
 
+DEFAULT_REPLICATIONS = 200
+"""Replications of every study when neither the call nor the scenario file says."""
+
 SWEEP_LISTINGS = 1000
 """The balance sweep uses the large-market limit of the market grown to at least this size."""
 
@@ -37,26 +40,41 @@ STANDARD_DESIGNS = (CustomerSide(0.5), ListingSide(0.5), TwoSided(0.5, 0.5),
 estimators); the design choice compares them with the other candidates."""
 
 
+def candidate_arms(scenario: Scenario) -> list[Arm]:
+    """The scenario's candidate designs (its ``designs`` specs, or the standard grid)."""
+    if scenario.designs is None:
+        return default_candidates()
+    build = {"customer-side": lambda s: CustomerSide(s["treated"]),
+             "listing-side": lambda s: ListingSide(s["treated"]),
+             "two-sided": lambda s: TwoSided(s["customers"], s["listings"]),
+             "two-sided-following-balance":
+                 lambda s: TwoSidedFollowingBalance(s["customers"], s["listings"])}
+    arms = {}
+    for spec in scenario.designs:
+        design = build[spec["design"]](spec)
+        arms.setdefault(design.label, Arm(design))
+    return list(arms.values())
+
+
 def run_study(scenario: Scenario, replications: int, seed: SeedLike,
               workers: int) -> tuple[StudyResult, list[Arm]]:
-    """One study of every candidate design over the planned horizon: section 1 shows the
-    standard designs, section 3 ranks them all (one truth for the whole report)."""
-    arms = default_candidates()
-    standard = {design.label for design in STANDARD_DESIGNS}
-    missing = standard - {arm.label for arm in arms}
-    arms += [Arm(design) for design in STANDARD_DESIGNS if design.label in missing]
+    """One study of every candidate design and the standard designs over the planned
+    horizon: section 1 shows the standard designs, section 3 ranks the candidates (one
+    truth for the whole report). Returns the result and the candidates."""
+    candidates = candidate_arms(scenario)
+    known = {arm.label for arm in candidates}
+    arms = candidates + [Arm(d) for d in STANDARD_DESIGNS if d.label not in known]
     study = Study(scenario.market, scenario.treatment, arms, horizon=scenario.horizon,
                   burn_in=scenario.burn_in)
     unit = scenario.time_unit
     print(f"Study: {len(study.arms)} candidate designs, {replications} replications of "
           f"{scenario.horizon:g} {unit}s measured after a {scenario.burn_in:g}-{unit} "
           f"burn-in, {workers} worker process(es)")
-    return study.run(replications, seed=seed, workers=workers, progress=True), arms
+    return study.run(replications, seed=seed, workers=workers, progress=True), candidates
 
 
-def standard_rows(result: StudyResult) -> StudyResult:
-    """The study restricted to the standard designs (for section 1)."""
-    labels = {design.label for design in STANDARD_DESIGNS}
+def rows_of(result: StudyResult, labels: set[str]) -> StudyResult:
+    """The study restricted to the arms named ``labels``."""
     return replace(result, summary=result.summary[result.summary["arm"].isin(labels)]
                    .reset_index(drop=True),
                    replications=result.replications[result.replications["arm"].isin(labels)]
@@ -199,7 +217,7 @@ def plan_section(report: Report, scenario: Scenario, result: StudyResult, arms: 
     """Design choice at the planned horizon (from the study) and the horizon for the
     minimum effect."""
     market, treatment, unit = scenario.market, scenario.treatment, scenario.time_unit
-    choice = choice_from_result(result, arms, market)
+    choice = choice_from_result(rows_of(result, {arm.label for arm in arms}), arms, market)
     best = choice.recommended
     report.heading("3. Which design, and how long to run it?")
     report.text(
@@ -216,14 +234,13 @@ def plan_section(report: Report, scenario: Scenario, result: StudyResult, arms: 
     report.figure(choice.plot(), "design_choice.png",
                   "RMSE at the planned horizon, split into bias and noise")
     report.text(choice.report().replace("\n", "\n\n"))
+    kind, value = scenario.target or ("minimum_effect", scenario.minimum_effect)
     plan = plan_horizon(market, treatment, choice, pilot_horizon=scenario.horizon / 4,
-                        burn_in=scenario.burn_in, minimum_effect=scenario.minimum_effect,
-                        replications=replications, seed=seed, workers=workers,
-                        progress=True, time_unit=unit)
+                        burn_in=scenario.burn_in, replications=replications, seed=seed,
+                        workers=workers, progress=True, time_unit=unit, **{kind: value})
     report.text(
-        f"How long must **{best['arm']}** with the {best['estimator']} estimator run to "
-        f"detect {scenario.minimum_effect:g} more bookings per {unit} (80% power, 5% level, "
-        "with the standard error the analyst reports)? The horizon is the measured window "
+        f"How long must **{best['arm']}** with the {best['estimator']} estimator run? "
+        f"Target: {plan.target}. The horizon is the measured window "
         f"after the burn-in. The plan runs its own pilots at {scenario.horizon / 4:g} and "
         f"{scenario.horizon:g} {unit}s, so its true effect "
         f"({plan.table['truth'].iloc[0]:.3g}) is another Monte Carlo estimate of the effect "
@@ -234,7 +251,8 @@ def plan_section(report: Report, scenario: Scenario, result: StudyResult, arms: 
     print(plan.report())
 
 
-def write_full_report(scenario: Scenario, replications: int = 200, seed: SeedLike = 2026,
+def write_full_report(scenario: Scenario, replications: int | None = None,
+                      seed: SeedLike = 2026,
                       out: str | Path = "marketsim-report",
                       workers: int | None = None, calibration: bool = False) -> Path:
     """Run the whole job on a scenario and write it up.
@@ -249,8 +267,9 @@ def write_full_report(scenario: Scenario, replications: int = 200, seed: SeedLik
     ----------
     scenario : Scenario
         The market, the feature and the planned experiment.
-    replications : int
-        Monte Carlo replications of each study (>= 2).
+    replications : int, optional
+        Monte Carlo replications of each study (>= 2; default: the scenario's
+        ``replications``, else :data:`DEFAULT_REPLICATIONS`).
     seed : int, SeedSequence, Generator or None
         Seed of the whole run.
     out : str or Path
@@ -267,6 +286,8 @@ def write_full_report(scenario: Scenario, replications: int = 200, seed: SeedLik
         The report file.
     """
     market, treatment = scenario.market, scenario.treatment
+    if replications is None:
+        replications = scenario.replications or DEFAULT_REPLICATIONS
     workers = min(4, default_workers()) if workers is None else workers
     study_seed, plan_seed, calibration_seed = spawn(seed, 3)
     report = Report(out, f"Experiment report: {scenario.name}")
@@ -277,7 +298,7 @@ def write_full_report(scenario: Scenario, replications: int = 200, seed: SeedLik
     print(f"  {market}")
     print(f"  feature under test: {treatment}")
     result, arms = run_study(scenario, replications, study_seed, workers)
-    standard = standard_rows(result)
+    standard = rows_of(result, {design.label for design in STANDARD_DESIGNS})
     print_study(standard, scenario.time_unit)
     study_section(report, standard, scenario)
     sweep_section(report, scenario)
