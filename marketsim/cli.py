@@ -34,9 +34,9 @@ from __future__ import annotations
 import argparse
 import sys
 from collections.abc import Sequence
+from importlib.metadata import version
 from pathlib import Path
 
-from marketsim import __version__
 from marketsim.calibration import analyze, calibrate, read_log_folder
 from marketsim.model import Treatment
 from marketsim.model.plan_spec import describe_keys
@@ -77,7 +77,7 @@ def main(argv: Sequence[str] | None = None) -> int:
                     "simulated but not measured; horizons are in the scenario's time unit "
                     "(long ones also in days, weeks or years).",
     )
-    parser.add_argument("--version", action="version", version=f"marketsim {__version__}")
+    parser.add_argument("--version", action="version", version=f"marketsim {version('marketsim')}")
     commands = parser.add_subparsers(dest="command", required=True)
     demo = commands.add_parser("demo", help="the whole job on the built-in invented scenario")
     _run_options(demo)
