@@ -29,6 +29,7 @@ from marketsim.estimators import (
     Estimator,
     ListingSideEstimator,
     TwoSidedCorrected,
+    TwoSidedDebiased,
     TwoSidedNaive,
 )
 from marketsim.model import DemandProfile, Market, Treatment, busy_time, scenarios
@@ -77,6 +78,7 @@ __all__ = [
     "ListingSideEstimator",
     "TwoSidedNaive",
     "TwoSidedCorrected",
+    "TwoSidedDebiased",
     "Study",
     "Arm",
     "StudyResult",

@@ -182,7 +182,8 @@ def test_two_sided_following_balance_is_for_balance_at_each_market():
         assert ours.listing_count.tolist() == fixed.listing_count.tolist()
     assert design.label == "two-sided (follows balance)"
     assert [e.name for e in design_estimators(design)] == [
-        "two-sided naive", "two-sided corrected (k=1)", "two-sided corrected (k=2)"]
+        "two-sided naive", "two-sided corrected (k=1)", "two-sided corrected (k=2)",
+        "two-sided debiased (first order)"]
     with pytest.raises(ValueError, match=r"listings must be a finite number in \(0, 1\)"):
         ms.TwoSidedFollowingBalance(listings=1.0)
 

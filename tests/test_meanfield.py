@@ -424,7 +424,7 @@ def test_agrees_with_a_study_of_a_large_finite_market():
                       start="steady").run(replications=60, seed=3, progress=False)
     expected = pd.concat([mf.expected_estimates(market, treatment, d) for d in designs])
     joined = result.summary.merge(expected, on=["design", "estimator"], suffixes=("", "_limit"))
-    assert len(joined) == len(result.summary) == 5
+    assert len(joined) == len(result.summary) == 6
     se = joined["sd"] / np.sqrt(joined["replications"])
     assert (np.abs(joined["mean_estimate"] - joined["expected_estimate"]) < 4 * se).all()
     truth_gap = np.abs(joined["truth"] - joined["truth_limit"])

@@ -71,12 +71,12 @@ def test_every_estimator_is_unbiased_when_nothing_competes():
         ms.Arm(ms.CustomerSide(0.5), [ms.CustomerSideEstimator()]),
         ms.Arm(ms.ListingSide(0.5), [ms.ListingSideEstimator()]),
         ms.Arm(ms.TwoSided(0.5, 0.5), [ms.TwoSidedNaive(), ms.TwoSidedCorrected(k=1),
-                                       ms.TwoSidedCorrected(k=2)]),
+                                       ms.TwoSidedCorrected(k=2), ms.TwoSidedDebiased()]),
     ]
     result = ms.Study(market, UTILITY_SHIFT, arms, horizon=20_000.0).run(
         100, seed=11, workers=2, progress=False)
     summary = result.summary
-    assert len(summary) == 5
+    assert len(summary) == 6
     assert (summary["truth"] > 0).all()
     for _, r in summary.iterrows():
         assert abs(r["bias"]) <= 3.0 * r["bias_mc_se"], r[["arm", "estimator", "bias",

@@ -54,6 +54,7 @@ from marketsim.estimators.linear import (
     CustomerSideEstimator,
     ListingSideEstimator,
     TwoSidedCorrected,
+    TwoSidedDebiased,
     TwoSidedNaive,
 )
 from marketsim.estimators.totals import METRICS, Estimate, GroupTotals, group_rates, metric_rate
@@ -69,6 +70,7 @@ __all__ = [
     "ListingSideEstimator",
     "TwoSidedNaive",
     "TwoSidedCorrected",
+    "TwoSidedDebiased",
     "all_estimators",
     "default_estimators",
     "design_estimators",

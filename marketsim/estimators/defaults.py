@@ -19,6 +19,7 @@ from marketsim.estimators.linear import (
     CustomerSideEstimator,
     ListingSideEstimator,
     TwoSidedCorrected,
+    TwoSidedDebiased,
     TwoSidedNaive,
 )
 from marketsim.model.market import Market
@@ -32,7 +33,14 @@ def all_estimators() -> tuple[Estimator, ...]:
         TwoSidedNaive(),
         TwoSidedCorrected(k=1),
         TwoSidedCorrected(k=2),
+        TwoSidedDebiased(),
     )
+
+
+def two_sided_family() -> tuple[Estimator, ...]:
+    """The estimators of a two-sided design: naive, corrected (k = 1, 2), debiased."""
+    return (TwoSidedNaive(), TwoSidedCorrected(k=1), TwoSidedCorrected(k=2),
+            TwoSidedDebiased())
 
 
 OWN_ESTIMATORS: dict[type[Design], Callable[[], tuple[Estimator, ...]]] = {
@@ -41,9 +49,8 @@ OWN_ESTIMATORS: dict[type[Design], Callable[[], tuple[Estimator, ...]]] = {
     # The one-sided contrasts of a two-sided experiment measure a partial exposure
     # (treated customers see the feature on only a share of the listings): they are
     # scored only when asked for.
-    TwoSided: lambda: (TwoSidedNaive(), TwoSidedCorrected(k=1), TwoSidedCorrected(k=2)),
-    TwoSidedFollowingBalance: lambda: (TwoSidedNaive(), TwoSidedCorrected(k=1),
-                                       TwoSidedCorrected(k=2)),
+    TwoSided: lambda: two_sided_family(),
+    TwoSidedFollowingBalance: lambda: two_sided_family(),
 }
 """Each design's own estimators, by design class. The table lives here, with the
 estimators, so that designs never need to know about estimators; a new design
@@ -107,5 +114,5 @@ def fitting_estimators(split: CellSplit, market: Market) -> tuple[Estimator, ...
     return tuple(fitting)
 
 
-__all__ = ["OWN_ESTIMATORS", "all_estimators", "design_estimators", "default_estimators",
-           "fitting_estimators"]
+__all__ = ["OWN_ESTIMATORS", "two_sided_family", "all_estimators", "design_estimators",
+           "default_estimators", "fitting_estimators"]
