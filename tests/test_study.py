@@ -293,8 +293,8 @@ def test_summary_has_one_row_per_arm_estimator_metric_and_documented_columns():
     summary = result.summary
     assert tuple(summary.columns) == SUMMARY_COLUMNS
     # customer-side arm: only the customer-side estimator (the naive one repeats it)
-    # two-sided arm: the three two-sided estimators; three metrics each
-    assert len(summary) == (1 + 3) * 3
+    # two-sided arm: the four two-sided estimators; three metrics each
+    assert len(summary) == (1 + 4) * 3
     assert summary[["arm", "estimator", "metric"]].duplicated().sum() == 0
     assert set(summary["arm"]) == {"customer-side (a_C=0.5)", "tsr"}
     for column in SUMMARY_COLUMNS:
@@ -375,7 +375,7 @@ def test_plot_returns_a_figure_with_two_panels():
     assert isinstance(figure, Figure)
     left, right = figure.axes
     assert "relative bias" in left.get_title() and "RMSE" in right.get_title()
-    assert len(left.get_yticklabels()) == 4
+    assert len(left.get_yticklabels()) == 5  # customer-side + four two-sided estimators
     assert "revenue" in result.plot(metric="revenue").axes[1].get_title()
     with pytest.raises(ValueError, match="metric must be one of 'bookings', 'revenue'"):
         result.plot(metric="conversion")
