@@ -17,7 +17,9 @@ allocations during that call (``tracemalloc``) and the process's peak resident s
 
 Last measured (2-core development container, Python 3.11, numpy 2.4, scipy 1.17)::
 
-    see the issue note (figures are printed by the script)
+    log: 999,058 sessions, 420,455 stays, 2,969,575 impressions, 40 listings
+    calibrate: 2.87 s (target 15 s, ratio 0.19); peak allocations 0.22 GiB (target 4 GiB,
+    ratio 0.06); process peak resident 0.72 GiB (simulation included)
 """
 
 from __future__ import annotations

@@ -232,6 +232,9 @@ def test_fit_checks_speak_plain_words(round_trip_log):
     assert fit.market.n_listings == MARKET.n_listings
     markets = fit.draw(5, seed=1)
     assert len(markets) == 5 and markets[0].arrival_rate != markets[1].arrival_rate
+    logged = fit.market_with_logged_busy_times()
+    assert [b.family for b in logged.busy_time] == ["empirical", "empirical"]
+    np.testing.assert_allclose(logged.mean_busy_time, fit.market.mean_busy_time)
     assert [m.arrival_rate for m in fit.draw(2, seed=4)] == \
         [m.arrival_rate for m in fit.draw(2, seed=4)]
     fit.plot()

@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 
 from marketsim.calibration.arrivals import StationarityTest, stationarity_test
-from marketsim.calibration.busy import ExponentialTest, complete_durations, exponential_test
+from marketsim.calibration.busy import ExponentialTest, exponential_test
 from marketsim.calibration.tables import CheckedLog
 from marketsim.engine import build_cells, run_cells
 from marketsim.meanfield import steady_state
@@ -116,10 +116,11 @@ def _busy_meaning(test: ExponentialTest) -> str:
             "while the simulator assumes exponential ones; long-run booking rates are often "
             "close (in the one-type loss system they depend only on the mean), but how fast "
             "the market recovers after a booking differs, so bias and noise, above all of "
-            "short experiments and switchbacks, may differ from what is simulated")
+            "short experiments and switchbacks, may differ from what is simulated: "
+            "simulate calibration.market_with_logged_busy_times() to see by how much")
 
 
-def fit_checks(log: CheckedLog, market: Market, busy_mean: np.ndarray,
+def fit_checks(log: CheckedLog, market: Market, stays: dict[str, np.ndarray],
                seed: SeedLike = 0) -> FitChecks:
     """Run the three checks of a calibration of ``log`` at ``market``.
 
@@ -156,8 +157,5 @@ def fit_checks(log: CheckedLog, market: Market, busy_mean: np.ndarray,
                 "large_market_rate": large,
                 "large_market_gap": large / rate - 1 if rate > 0 else np.inf,
             })
-    busy_times = {
-        name: exponential_test(complete_durations(log, j, busy_mean[j]))
-        for j, name in enumerate(log.listing_types)
-    }
+    busy_times = {name: exponential_test(stays[name]) for name in log.listing_types}
     return FitChecks(pd.DataFrame(rows), busy_times, stationarity_test(log))

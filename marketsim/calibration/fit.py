@@ -9,7 +9,7 @@ from numpy.typing import ArrayLike
 from marketsim import _validation as check
 from marketsim.calibration.arrivals import fit_arrivals
 from marketsim.calibration.availability import available_at
-from marketsim.calibration.busy import fit_busy_times
+from marketsim.calibration.busy import complete_durations, fit_busy_times
 from marketsim.calibration.checks import fit_checks
 from marketsim.calibration.choice import (
     considered_counts,
@@ -120,6 +120,8 @@ def calibrate_checked(log: CheckedLog, consideration: ArrayLike | None = None, *
         notes.insert(0, NOT_IDENTIFIED)
     arrivals = fit_arrivals(log)
     busy = fit_busy_times(log)
+    stays = {name: complete_durations(log, j, busy.mean[j])
+             for j, name in enumerate(log.listing_types)}
     market = Market(
         listing_counts=counts, mean_busy_time=busy.mean, arrival_rate=arrivals.rate,
         customer_shares=arrivals.shares, consideration=alpha, utility=utility.value,
@@ -131,7 +133,7 @@ def calibrate_checked(log: CheckedLog, consideration: ArrayLike | None = None, *
     return Calibration(
         market=market,
         table=parameter_table(market, arrivals, busy, consideration_fit, utility),
-        checks=fit_checks(log, market, busy.mean, seed),
+        checks=fit_checks(log, market, stays, seed),
         arrivals=arrivals, busy=busy, consideration=consideration_fit, utility=utility,
-        notes=tuple(notes),
+        notes=tuple(notes), complete_stays=stays,
     )

@@ -14,6 +14,7 @@ from marketsim.calibration.busy import BusyFit
 from marketsim.calibration.checks import FitChecks
 from marketsim.calibration.choice import ConsiderationFit, LogitFit
 from marketsim.model import Market
+from marketsim.model.busy_time import Empirical
 from marketsim.randomness import SeedLike, seed_sequence
 
 Z95 = 1.959963984540054
@@ -41,6 +42,10 @@ class Calibration:
     utility : LogitFit
     notes : tuple of str
         What the calibration assumed or set aside, in words.
+    complete_stays : dict of str to ndarray
+        Per listing type, the busy times of the stays seen from start to end (those
+        starting at least ``TEST_MARGIN`` mean busy times before the window's end),
+        used by the exponential check and :meth:`market_with_logged_busy_times`.
     """
 
     market: Market
@@ -51,6 +56,19 @@ class Calibration:
     consideration: ConsiderationFit | None
     utility: LogitFit
     notes: tuple[str, ...]
+    complete_stays: dict[str, np.ndarray]
+
+    def market_with_logged_busy_times(self) -> Market:
+        """:attr:`market` with busy times resampled from the logged stays
+        (:class:`~marketsim.model.busy_time.Empirical`, rescaled to the estimated mean):
+        simulate it (the general engine) when the exponential check is flagged, to see
+        how much the busy times' shape changes the answers.
+
+        The complete stays slightly under-represent stays longer than ``TEST_MARGIN``
+        mean busy times (they are more often cut by the window's end).
+        """
+        return self.market.replace(busy_time=[Empirical(self.complete_stays[name])
+                                              for name in self.market.listing_types])
 
     def to_frame(self) -> pd.DataFrame:
         """The parameter table."""
