@@ -336,3 +336,28 @@ def test_stationarity_check_flags_a_rate_that_follows_the_hour_of_day():
 
         verdicts[name] = stationarity_test(check_log(sessions, stays, listings)).flagged
     assert verdicts == {"varying": True, "constant": False}
+
+
+@given(st.lists(st.tuples(st.integers(0, 2), st.floats(0, 20), st.floats(0, 5)), max_size=25),
+       st.lists(st.tuples(st.integers(0, 2), st.floats(0, 30)), min_size=1, max_size=25))
+@settings(max_examples=80, deadline=None)
+def test_busy_lookup_matches_a_direct_search(stays, queries):
+    # Invariant of the interval search behind the booking and impression checks:
+    # busy = some stay of the listing has start < t < end (stays of one listing are
+    # made disjoint here by laying them end to end).
+    from marketsim.calibration.tables import _busy_at
+
+    listing = np.array([s[0] for s in stays], dtype=np.int64)
+    start = np.zeros(len(stays))
+    end = np.zeros(len(stays))
+    clock = {0: 0.0, 1: 0.0, 2: 0.0}
+    for k, (ell, gap, length) in enumerate(stays):
+        start[k] = clock[ell] + gap
+        end[k] = start[k] + length
+        clock[ell] = end[k]
+    q_listing = np.array([q[0] for q in queries], dtype=np.int64)
+    q_time = np.array([q[1] for q in queries])
+    got = _busy_at(listing, start, end, q_listing, q_time)
+    for k in range(len(queries)):
+        expected = np.any((listing == q_listing[k]) & (start < q_time[k]) & (end > q_time[k]))
+        assert got[k] == expected
