@@ -519,17 +519,19 @@ def test_progress_bars_only_where_they_can_redraw(monkeypatch):
 
     from tqdm import tqdm
 
-    monkeypatch.setattr(backends.sys, "stderr", io.StringIO())
-    assert backends.progress_bar_class() is None
+    from marketsim.study import progress
+
+    monkeypatch.setattr(progress.sys, "stderr", io.StringIO())
+    assert progress.progress_bar_class() is None
     assert backends._progress_bar(10, True, "x").disable
 
     class Terminal(io.StringIO):
         def isatty(self):
             return True
 
-    monkeypatch.setattr(backends.sys, "stderr", Terminal())
-    assert backends.progress_bar_class() is tqdm
-    monkeypatch.setattr(backends, "_in_notebook", lambda: True)
+    monkeypatch.setattr(progress.sys, "stderr", Terminal())
+    assert progress.progress_bar_class() is tqdm
+    monkeypatch.setattr(progress, "_in_notebook", lambda: True)
     monkeypatch.setitem(sys.modules, "ipywidgets", None)  # not installed
-    assert backends.progress_bar_class() is None
+    assert progress.progress_bar_class() is None
 

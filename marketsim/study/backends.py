@@ -17,7 +17,6 @@ from __future__ import annotations
 
 import multiprocessing
 import signal
-import sys
 import time
 import warnings
 from collections.abc import Callable, Sequence
@@ -25,6 +24,7 @@ from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 
+from marketsim.study.progress import progress_bar_class
 from marketsim.study.store import package_version
 
 BACKENDS = ("local", "dask")
@@ -152,36 +152,6 @@ def _runs(indices: Sequence[int]) -> list[tuple[int, int]]:
         else:
             runs.append((index, index + 1))
     return runs
-
-
-def _in_notebook() -> bool:
-    """Whether we run in a Jupyter kernel (IPython with a kernel attached)."""
-    shell = sys.modules.get("IPython")
-    if shell is None:
-        return False
-    ip = shell.get_ipython() if hasattr(shell, "get_ipython") else None
-    return ip is not None and "IPKernelApp" in getattr(ip, "config", {})
-
-
-def progress_bar_class():
-    """The progress bar that fits where we run, or None for no bar.
-
-    A notebook gets tqdm's widget bar (when ipywidgets is installed; without it a
-    text bar would print line after line, so there is none); a terminal gets the
-    text bar; anything else (a log file, a pipe, CI) gets none.
-    """
-    if _in_notebook():
-        try:
-            import ipywidgets  # noqa: F401
-            from tqdm.notebook import tqdm
-        except ImportError:
-            return None
-        return tqdm
-    if sys.stderr is not None and sys.stderr.isatty():
-        from tqdm import tqdm
-
-        return tqdm
-    return None
 
 
 def _progress_bar(total: int, enabled: bool, desc: str, initial: int = 0):

@@ -15,6 +15,7 @@ import time
 
 from marketsim import _validation as check
 from marketsim.engine import SliceProgress
+from marketsim.study.progress import progress_bar
 
 
 def limits(max_seconds: float | None, max_events: int | None) -> tuple[float | None, int | None]:
@@ -72,9 +73,7 @@ class SliceGuard:
             refuse("simulate", events, seconds,
                    f"estimated from a timed slice of {timed:,} events",
                    self.max_seconds, self.max_events)
-            from tqdm import tqdm
-
-            self.bar = tqdm(total=100, disable=not self.progress, delay=1.0, leave=False,
+            self.bar = progress_bar(self.progress, total=100, delay=1.0, leave=False,
                             desc=f"simulate (about {events:.3g} events, {seconds:.3g} s)",
                             unit="%", bar_format="{desc}: {percentage:3.0f}%|{bar}| "
                                                  "{elapsed}<{remaining}")
