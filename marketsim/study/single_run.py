@@ -55,8 +55,8 @@ def simulate(
     design : Design, optional
         Who is treated (default :class:`~marketsim.GlobalControl`).
     horizon : float
-        Length of the measurement window, > 0 (and at least ``1e-9 * burn_in``,
-        so that rounding cannot swallow the window).
+        Length of the measured window (it starts after the burn-in), > 0 (and at
+        least ``1e-9 * burn_in``, so that rounding cannot swallow the window).
     burn_in : float
         Time simulated before the window starts and not recorded, >= 0.
     seed : int, SeedSequence, Generator or None

@@ -34,7 +34,9 @@ class Study:
         The designs to score; a bare design is ``Arm(design)`` (the design's own
         estimators that fit it). Arm names must be distinct.
     horizon : float
-        Length of the measurement window of every run, > 0.
+        Length of the measured window of every run, > 0: the experiment's
+        horizon, which starts after the burn-in (the burn-in is simulated first
+        and not measured).
     burn_in : float
         Time simulated before the window and not recorded, >= 0.
     metric : str or sequence of str
