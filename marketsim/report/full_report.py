@@ -122,9 +122,9 @@ def study_section(report: Report, result: StudyResult, scenario: Scenario) -> No
     report.heading("1. How biased and how noisy is each design?")
     report.text(
         f"Each of {result.completed} replications simulates a horizon of "
-        f"{readable_duration(scenario.horizon, unit)} (the measured window, after a "
-        f"{scenario.burn_in:g}-{unit} burn-in that is simulated but not measured) of both "
-        "global worlds and of every design. True global treatment effect: "
+        f"{readable_duration(scenario.horizon, unit)} of both global worlds and of every "
+        f"design; the horizon is the measured window, after a {scenario.burn_in:g}-{unit} "
+        "burn-in that is simulated but not measured. True global treatment effect: "
         f"**{truth['value']:.3f} bookings per {unit}** (Monte Carlo s.e. {truth['mc_se']:.3f}), "
         f"from {truth['global_control']:.3f} to {truth['global_treatment']:.3f}; the same "
         "simulations serve the design choice of section 3, so the report has one truth. "
