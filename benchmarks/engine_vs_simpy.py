@@ -29,6 +29,7 @@ import numpy as np
 import simpy
 
 import marketsim as ms
+from marketsim.engine import simpy_reference
 
 
 def benchmark_market() -> ms.Market:
@@ -51,68 +52,16 @@ def benchmark_market() -> ms.Market:
 # ------------------------------------------------------------------ the baseline
 def simpy_run(market: ms.Market, *, horizon: float, burn_in: float, seed: int,
               process_per_booking: bool = True) -> dict:
-    """The SimPy model a user would otherwise write for the same market.
-
-    State aggregated by type (available listings per listing type, a numpy
-    array); numpy draws for arrival gaps, the customer type, the number of
-    considered listings per type (binomial) and the logit choice among them
-    and the outside option (weight ``N * exp(outside_utility)``); every
-    booking starts a SimPy process (or, in the leaner variant, a timeout with
-    a callback) that releases the listing after an exponential busy time.
-    """
-    rng = np.random.default_rng(seed)
-    env = simpy.Environment()
-    available = market.listing_counts.astype(np.int64).copy()
-    weight = np.exp(market.utility)
-    outside = market.n_listings * np.exp(market.outside_utility)
-    share_cdf = np.cumsum(market.customer_shares)
-    mean_gap = 1.0 / market.arrival_rate
-    busy_time = market.mean_busy_time
-    consideration = market.consideration
-    n_types = market.n_listing_types
-    counts = {"arrivals": 0, "releases": 0, "events": 0}
-    bookings = np.zeros((market.n_customer_types, n_types), dtype=np.int64)
-    end = burn_in + horizon
-
-    def release(j):
-        available[j] += 1
-        counts["events"] += 1
-        if env.now >= burn_in:
-            counts["releases"] += 1
-
-    def occupy(j):
-        yield env.timeout(rng.exponential(busy_time[j]))
-        release(j)
-
-    def customers():
-        while True:
-            yield env.timeout(rng.exponential(mean_gap))
-            counts["events"] += 1
-            recording = env.now >= burn_in
-            i = min(int(np.searchsorted(share_cdf, rng.random(), side="right")),
-                    len(share_cdf) - 1)
-            considered = rng.binomial(available, consideration[i])
-            cumulative = np.cumsum(considered * weight[i])
-            draw = rng.random() * (outside[i] + cumulative[-1])
-            j = int(np.searchsorted(cumulative, draw, side="right"))
-            if recording:
-                counts["arrivals"] += 1
-            if j < n_types:
-                available[j] -= 1
-                if recording:
-                    bookings[i, j] += 1
-                if process_per_booking:
-                    env.process(occupy(j))
-                else:
-                    timeout = env.timeout(rng.exponential(busy_time[j]))
-                    timeout.callbacks.append(lambda _event, j=j: release(j))
-
-    env.process(customers())
-    start = time.process_time()
-    env.run(until=end)
-    seconds = time.process_time() - start
-    return {"seconds": seconds, "events": counts["events"], "bookings": bookings,
-            "arrivals": counts["arrivals"], "window": horizon}
+    """The SimPy model a user would otherwise write for the same market
+    (:mod:`marketsim.engine.simpy_reference`, also the tests' reference): state
+    aggregated by type, numpy draws for arrival gaps, customer type, considered
+    listings per type (binomial) and the logit choice, and one SimPy process (or
+    a timeout with a callback) per booking that releases the listing after its
+    busy time."""
+    run = simpy_reference.simpy_run(market, horizon=horizon, burn_in=burn_in, seed=seed,
+                                    process_per_booking=process_per_booking)
+    return {"seconds": run.seconds, "events": run.events, "bookings": run.bookings,
+            "arrivals": int(run.arrivals.sum()), "window": run.window}
 
 
 def engine_run(market: ms.Market, *, horizon: float, burn_in: float, seed: int,

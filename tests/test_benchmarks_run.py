@@ -14,6 +14,8 @@ BENCHMARKS = ROOT / "benchmarks"
 
 @pytest.mark.parametrize("script, arguments, expected", [
     ("engine_vs_simpy.py", ["--quick", "--repeats", "1"], "cost per event at 1,000,000"),
+    ("general_engine.py", ["--events", "2e4", "--large", "10", "--repeats", "1"],
+     "daily profile / flat demand cost per event"),
     ("study_workers.py", ["--replications", "4", "--events", "2e4", "--repeats", "1"],
      "speed-up:"),
     ("meanfield_speed.py", ["--repeats", "3"], "Balance sweep, 60 points"),

@@ -138,3 +138,23 @@ def test_logged_runs_refuse_what_the_logging_kernel_cannot_simulate():
         with pytest.raises(ValueError, match="market must have exponential busy times and "
                                              "a constant arrival rate for logged runs"):
             simulate_log(variant, horizon=10.0, seed=1)
+
+
+@pytest.mark.slow
+def test_warm_start_is_steady_with_general_busy_times():
+    """From ``start="steady"`` (large-market counts, which depend on the busy times
+    only through their means, and remaining busy times from the equilibrium law of
+    renewal theory) the booking rate of the first half hour already equals the
+    long-run rate within Monte Carlo error (which sees a 6% transient)."""
+    market = ms.scenarios.rehearsal_rooms().scaled(10).replace(
+        busy_time=ms.busy_time.LogNormal(cv=2.0))
+    seeds = np.random.SeedSequence(8).spawn(200)
+    early = np.array([ms.simulate(market, horizon=0.5, start="steady", seed=s).booking_rate
+                      for s in seeds])
+    long_run = ms.simulate(market, horizon=4000.0, burn_in=50.0, start="steady", seed=9,
+                           bins=40)
+    batches = long_run.bin_bookings.sum(axis=(1, 2)) / (4000.0 / 40)
+    (rate, se_rate), (warm, se_warm) = mean_and_se(batches), mean_and_se(early)
+    se = np.hypot(se_rate, se_warm)
+    assert se < 0.015 * rate
+    assert abs(warm - rate) < Z * se, (warm, rate, se)

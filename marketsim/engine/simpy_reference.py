@@ -136,7 +136,7 @@ def simpy_run(market: Market, *, horizon: float, burn_in: float = 0.0, seed: See
                 available[j] -= 1
                 if recording:
                     bookings[i, j] += 1
-                stay = float(shapes[j].sample(means[j], 1, rng)[0])
+                stay = shapes[j].sample(means[j], None, rng)
                 if process_per_booking:
                     env.process(occupy(j, stay))
                 else:

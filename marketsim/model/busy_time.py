@@ -59,12 +59,13 @@ class BusyTime:
     family: str = ""
     cv: float
 
-    def sample(self, mean: float, size: int, rng: np.random.Generator) -> np.ndarray:
-        """``size`` busy times with mean ``mean``.
+    def sample(self, mean: float, size: int | None,
+               rng: np.random.Generator) -> np.ndarray | float:
+        """``size`` busy times with mean ``mean`` (one float when ``size`` is None).
 
         Returns
         -------
-        ndarray of float, shape (size,)
+        ndarray of float, shape (size,), or float
         """
         raise NotImplementedError
 
@@ -138,7 +139,7 @@ class Fixed(BusyTime):
         return 0.0
 
     def sample(self, mean, size, rng):
-        return np.full(size, float(mean))
+        return float(mean) if size is None else np.full(size, float(mean))
 
     def _length_biased(self, mean, size, rng):
         return np.full(size, float(mean))
