@@ -119,6 +119,8 @@ def choose_design(
     backend: str = "local",
     client: object = None,
     store: str | os.PathLike | None = None,
+    max_seconds: float | None = None,
+    max_events: int | None = None,
 ) -> DesignChoice:
     """Compare designs and treated fractions by their RMSE at the planned horizon.
 
@@ -135,7 +137,7 @@ def choose_design(
         Default :func:`default_candidates`: customer-side and listing-side at
         25%, 50% and 75% treated, two-sided 50/50 and two-sided following balance.
     metric : {"bookings", "revenue", "conversion"}
-    replications, seed, workers, progress, backend, client, store
+    replications, seed, workers, progress, backend, client, store, max_seconds, max_events
         As for :meth:`Study.run` (the store holds the study of the candidates).
 
     Returns
@@ -159,7 +161,8 @@ def choose_design(
             (default_candidates() if candidates is None else list(candidates))]
     study = Study(market, treatment, arms, horizon=horizon, burn_in=burn_in, metric=metric)
     result = study.run(replications, seed=seed, workers=workers, progress=progress,
-                       backend=backend, client=client, store=store)
+                       backend=backend, client=client, store=store, max_seconds=max_seconds,
+                       max_events=max_events)
     return choice_from_result(result, arms, market)
 
 

@@ -135,6 +135,8 @@ def plan_horizon(
     backend: str = "local",
     client: object = None,
     store: str | os.PathLike | None = None,
+    max_seconds: float | None = None,
+    max_events: int | None = None,
     time_unit: str = "time unit",
 ) -> HorizonPlan:
     """Recommend the horizon at which an arm's estimators reach a target.
@@ -180,7 +182,7 @@ def plan_horizon(
         Replications of each pilot study.
     check_factor : float
         The second pilot horizon is ``check_factor * pilot_horizon``, > 1.
-    seed, workers, progress, backend, client, store
+    seed, workers, progress, backend, client, store, max_seconds, max_events
         As for :meth:`Study.run`; the pilots get the children of ``seed`` with
         spawn keys 0 and 1 and run together (one store holds both).
     time_unit : str
@@ -220,7 +222,8 @@ def plan_horizon(
               for horizon in (pilot, pilot * factor)]
     runs, interrupted = run_studies(
         pilots, replications, seed, kind="horizon plan", split=True, backend=backend,
-        workers=workers, client=client, store=store, progress=progress, desc="pilots")
+        workers=workers, client=client, store=store, progress=progress, desc="pilots",
+        max_seconds=max_seconds, max_events=max_events)
     if interrupted:
         kept = f" (what finished is kept in {str(store)!r})" if store is not None else ""
         raise KeyboardInterrupt(f"plan_horizon stopped: a plan needs both pilot studies{kept}")

@@ -54,6 +54,8 @@ def sweep(
     backend: str = "local",
     client: object = None,
     store: str | os.PathLike | None = None,
+    max_seconds: float | None = None,
+    max_events: int | None = None,
 ) -> pd.DataFrame:
     """Bias, standard deviation and RMSE of each arm over a range of one market parameter.
 
@@ -87,7 +89,7 @@ def sweep(
         the child of ``seed`` with spawn key ``k``.
     progress : bool
         Progress bar over the replications of every point (simulation mode).
-    backend, client, store
+    backend, client, store, max_seconds, max_events
         As for :meth:`Study.run` (simulation mode): every replication of every
         point is one task, so the points share the workers or the cluster, and
         a store holds every point (``StudyResult.from_store(store, study=k)``
@@ -120,11 +122,12 @@ def sweep(
     arm_likes = _arm_likes(arms)
     markets = [vary(market, value) for value in points]
     if mode == "large-market":
-        if store is not None or backend != "local" or client is not None:
+        if (store, client, max_seconds, max_events) != (None,) * 4 or backend != "local":
             raise ValueError(
-                "mode 'large-market' simulates nothing: backend, client and store are for "
-                f"mode 'simulation', got backend={backend!r}, client={client!r}, "
-                f"store={store!r}")
+                "mode 'large-market' simulates nothing: backend, client, store, max_seconds "
+                f"and max_events are for mode 'simulation', got backend={backend!r}, "
+                f"client={client!r}, store={store!r}, max_seconds={max_seconds!r}, "
+                f"max_events={max_events!r}")
         frames = [_large_market_point(at, treatment, arm_likes, metric) for at in markets]
     else:
         if horizon is None or replications is None:
@@ -136,7 +139,8 @@ def sweep(
                          horizon=horizon, burn_in=burn_in, metric=metric) for at in markets]
         frames = _simulate_points(studies, replications, seed, progress=progress,
                                   backend=backend, workers=workers, client=client,
-                                  store=store, asked={"parameter": name,
+                                  store=store, max_seconds=max_seconds,
+                                  max_events=max_events, asked={"parameter": name,
                                                       "values": describe(points)})
     rows = []
     for value, at, frame in zip(points, markets, frames):
