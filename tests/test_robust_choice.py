@@ -53,3 +53,47 @@ def test_markets_must_be_a_list_of_markets():
     with pytest.raises(ValueError, match="markets must be a list of at least 2"):
         ms.choose_design_robustly([ms.scenarios.rehearsal_rooms()],
                                   ms.scenarios.instant_confirmation(), horizon=10.0)
+
+
+def test_wins_follow_the_tie_rule_of_choose_design():
+    # One rule everywhere: at the central market the screen's winner is the candidate
+    # choose_design recommends from the same simulation (practical ties on RMSE broken
+    # by smaller absolute bias), even where it is not the smallest RMSE.
+    market = ms.scenarios.rehearsal_rooms()
+    treatment = ms.scenarios.instant_confirmation()
+    candidates = [ms.CustomerSide(0.5), ms.ListingSide(0.5), ms.TwoSided(0.5, 0.5)]
+    robust = ms.choose_design_robustly([market, market.with_balance(1.5)], treatment,
+                                       horizon=100.0, candidates=candidates,
+                                       replications=6, seed=0)
+    direct = ms.choose_design(market, treatment, horizon=100.0, candidates=candidates,
+                              replications=6, seed=0, progress=False)
+    at_center = robust.screen[robust.screen.market == 0]
+    winner = at_center[at_center.wins]
+    assert len(winner) == 1
+    assert (winner.arm.iloc[0], winner.estimator.iloc[0]) == (
+        direct.recommended["arm"], direct.recommended["estimator"])
+    assert winner.arm.iloc[0] != at_center.sort_values("rmse").arm.iloc[0]
+    assert robust.confirmation.iloc[0]["arm"] == direct.recommended["arm"]
+    assert (robust.screen.groupby("market").wins.sum() == 1).all()
+
+
+def test_the_report_says_whether_the_two_design_choices_agree():
+    from marketsim.report.calibration import agreement_text
+
+    market = ms.scenarios.rehearsal_rooms()
+    treatment = ms.scenarios.instant_confirmation()
+    candidates = [ms.CustomerSide(0.5), ms.ListingSide(0.5)]
+    robust = ms.choose_design_robustly([market, market.with_balance(0.9)], treatment,
+                                       horizon=100.0, candidates=candidates,
+                                       replications=6, seed=3)
+    winner = robust.recommended
+    same = ms.choose_design(market, treatment, horizon=100.0,
+                            candidates=[c for c in candidates if c.label == winner["arm"]],
+                            replications=4, seed=1, progress=False)
+    other = ms.choose_design(market, treatment, horizon=100.0,
+                             candidates=[c for c in candidates if c.label != winner["arm"]],
+                             replications=4, seed=1, progress=False)
+    assert agreement_text(same, robust).startswith("Both design choices")
+    text = agreement_text(other, robust)
+    assert text.startswith(f"Section 3 recommends {other.recommended['arm']}")
+    assert "one rule" in text

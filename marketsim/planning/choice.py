@@ -203,13 +203,12 @@ def rank_candidates(result: StudyResult) -> tuple[pd.DataFrame, list[str]]:
     mse = table["rmse"] ** 2
     table["bias_share"] = np.where(mse > 0, table["bias"] ** 2 / mse, 0.0)
     best = table.iloc[0]
-    gaps = table["rmse"] - best["rmse"]
-    errors = np.array([0.0] + [_rmse_difference_error(result, best, table.iloc[k])
-                               for k in range(1, len(table))])
-    table["tied"] = gaps <= 2.0 * errors
+    influence = rmse_influence_columns(result, table)
+    errors = paired_rmse_errors(influence, 0)
+    table["tied"] = tied_with_best(table["rmse"].to_numpy(), errors)
     table["rmse_gap_mc_se"] = errors
-    order = np.lexsort((table["rmse"].to_numpy(), table["bias"].abs().to_numpy(),
-                        ~table["tied"].to_numpy()))
+    order = preference_order(table["rmse"].to_numpy(), table["bias"].to_numpy(),
+                             table["tied"].to_numpy())
     tied = table[table["tied"]]
     table = table.iloc[order].reset_index(drop=True)
     table["rank"] = np.arange(1, len(table) + 1)
@@ -237,26 +236,88 @@ def rank_candidates(result: StudyResult) -> tuple[pd.DataFrame, list[str]]:
     return table, notes
 
 
-def _rmse_difference_error(result: StudyResult, first: pd.Series, second: pd.Series) -> float:
-    """Monte Carlo standard error of the difference of two rows' RMSEs.
+def tied_with_best(rmse: np.ndarray, gap_errors: np.ndarray) -> np.ndarray:
+    """Which candidates are practically tied with the smallest RMSE (:data:`TIE_RULE`).
+
+    Parameters
+    ----------
+    rmse : numpy.ndarray, shape (n,)
+    gap_errors : numpy.ndarray, shape (n,)
+        Monte Carlo standard error of each candidate's RMSE minus the smallest (0 for
+        the smallest itself).
+
+    Returns
+    -------
+    numpy.ndarray of bool, shape (n,)
+    """
+    return rmse - rmse.min() <= 2.0 * gap_errors
+
+
+def preference_order(rmse: np.ndarray, bias: np.ndarray, tied: np.ndarray) -> np.ndarray:
+    """Candidates best first by :data:`TIE_RULE`: the practically tied ones by absolute
+    bias (then RMSE), then the others by RMSE.
+
+    Parameters
+    ----------
+    rmse, bias : numpy.ndarray, shape (n,)
+    tied : numpy.ndarray of bool, shape (n,)
+        From :func:`tied_with_best`.
+
+    Returns
+    -------
+    numpy.ndarray of int, shape (n,)
+        Indices into the candidates.
+    """
+    return np.lexsort((rmse, np.where(tied, np.abs(bias), 0.0), ~tied))
+
+
+def rmse_influence_columns(result: StudyResult, rows: pd.DataFrame) -> np.ndarray:
+    """Per-replication influence values of each row's RMSE, one column per row.
 
     Every arm of a study shares its replication's random numbers with the global
-    worlds and the other arms (and estimators on one arm share its ledger), so the
-    two RMSEs are correlated: the error is computed from the paired per-replication
-    influence values (:func:`marketsim.study.rmse_influence`), not as if the rows
-    were independent.
+    worlds and the other arms (and estimators on one arm share its ledger), so two
+    rows' RMSEs are correlated: differences are judged from these paired values
+    (:func:`marketsim.study.rmse_influence`), not as if the rows were independent.
+
+    Parameters
+    ----------
+    result : StudyResult
+    rows : pandas.DataFrame
+        Rows of ``result.summary`` (columns ``arm``, ``estimator``, ``metric``).
+
+    Returns
+    -------
+    numpy.ndarray, shape (replications, len(rows))
     """
     raw = result.replications
+    columns = []
+    for row in rows.itertuples(index=False):
+        mine = raw[(raw["arm"] == row.arm) & (raw["estimator"] == row.estimator)
+                   & (raw["metric"] == row.metric)].sort_values("replication")
+        columns.append(rmse_influence(mine["estimate"].to_numpy(float),
+                                      mine["replication_truth"].to_numpy(float)))
+    return np.column_stack(columns)
 
-    def influence(row: pd.Series) -> np.ndarray:
-        mine = raw[(raw["arm"] == row["arm"]) & (raw["estimator"] == row["estimator"])
-                   & (raw["metric"] == row["metric"])].sort_values("replication")
-        return rmse_influence(mine["estimate"].to_numpy(float),
-                              mine["replication_truth"].to_numpy(float))
 
-    difference = influence(first) - influence(second)
-    return float(np.std(difference, ddof=1) / math.sqrt(difference.size))
+def paired_rmse_errors(influence: np.ndarray, best: int) -> np.ndarray:
+    """Monte Carlo standard error of every row's RMSE minus row ``best``'s (paired).
+
+    Parameters
+    ----------
+    influence : numpy.ndarray, shape (replications, n)
+        From :func:`rmse_influence_columns`.
+    best : int
+        The reference row.
+
+    Returns
+    -------
+    numpy.ndarray, shape (n,)
+        0 for ``best`` itself.
+    """
+    difference = influence - influence[:, [best]]
+    return np.std(difference, axis=0, ddof=1) / math.sqrt(influence.shape[0])
 
 
 __all__ = ["TIE_RULE", "DesignChoice", "choose_design", "default_candidates", "rank_candidates",
-           "choice_from_result"]
+           "choice_from_result", "tied_with_best", "preference_order", "rmse_influence_columns",
+           "paired_rmse_errors"]

@@ -7,6 +7,11 @@ candidate on every plausible market with the large-market model (milliseconds ea
 corrected by what the simulation showed at the centre. It counts how often each
 candidate wins and how much its RMSE spreads, and says whether the recommendation
 survives what the logs leave uncertain.
+
+A candidate "wins" on a market by the same rule as :func:`choose_design`
+(:data:`~marketsim.planning.choice.TIE_RULE`): among the candidates whose RMSE is within
+two paired Monte Carlo standard errors of the smallest (errors measured in the central
+simulation), the one with the smallest absolute bias.
 """
 
 from __future__ import annotations
@@ -21,14 +26,22 @@ from marketsim import _validation as check
 from marketsim.designs import Design
 from marketsim.meanfield import gte, steady_state
 from marketsim.model import Market, Treatment
-from marketsim.planning.choice import default_candidates
+from marketsim.planning.choice import (
+    TIE_RULE,
+    default_candidates,
+    paired_rmse_errors,
+    preference_order,
+    rank_candidates,
+    rmse_influence_columns,
+    tied_with_best,
+)
 from marketsim.randomness import SeedLike
 from marketsim.study import Arm, Study
 
 SURVIVES_SHARE = 0.7
 """The recommendation survives when it wins on at least this share of the plausible
-markets and the simulation at the central market confirms it (best, or within two
-Monte Carlo standard errors of the best)."""
+markets and the simulation at the central market confirms it (it is among the
+candidates practically tied there, by :data:`~marketsim.planning.choice.TIE_RULE`)."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -40,13 +53,13 @@ class RobustDesignChoice:
     screen : pandas.DataFrame
         One row per plausible market x candidate (arm x estimator): ``bias``, ``sd``
         and ``rmse`` at the horizon (see Notes of :func:`choose_design_robustly`), and
-        ``wins`` (best on that market).
+        ``wins`` (preferred on that market by the tie rule of :func:`choose_design`).
     summary : pandas.DataFrame
         One row per candidate: ``win_share`` and the RMSE's median, 10% and 90% points
         over the markets, sorted by win share then median RMSE.
     confirmation : pandas.DataFrame
-        The simulation at the central market: ``rmse``, ``rmse_mc_se``, ``bias``,
-        ``sd`` per candidate.
+        The simulation at the central market ranked as :func:`choose_design` ranks it:
+        ``rank``, ``bias``, ``sd``, ``rmse``, ``rmse_mc_se``, ``tied`` per candidate.
     recommended : pandas.Series
         The summary's first row.
     survives : bool
@@ -157,11 +170,12 @@ def choose_design_robustly(
     horizon, burn_in = check.window(horizon, burn_in)
     arms = [a if isinstance(a, Arm) else Arm(a) for a in
             (default_candidates() if candidates is None else candidates)]
-    simulated = Study(center, treatment, arms, horizon=horizon, burn_in=burn_in,
-                      metric=metric).run(replications, seed=seed, workers=workers,
-                                         progress=False).summary
-    confirmation = simulated[["arm", "estimator", "bias", "sd", "rmse",
-                              "rmse_mc_se"]].reset_index(drop=True)
+    result = Study(center, treatment, arms, horizon=horizon, burn_in=burn_in,
+                   metric=metric).run(replications, seed=seed, workers=workers,
+                                      progress=False)
+    ranked, _ = rank_candidates(result)
+    confirmation = ranked[["rank", "arm", "estimator", "bias", "sd", "rmse", "rmse_mc_se",
+                           "tied"]]
     keys = ["arm", "estimator"]
     at_center = pd.DataFrame(_screen_rows([center], treatment, arms, horizon, metric))
     gap = at_center.merge(confirmation, on=keys, suffixes=("_large", "_sim"))
@@ -172,8 +186,7 @@ def choose_design_robustly(
     screen["bias"] = screen["bias"] + screen.pop("bias_gap")
     screen["sd"] = screen["sd"] * screen.pop("sd_ratio")
     screen["rmse"] = np.hypot(screen["bias"], screen["sd"])
-    best = screen.groupby("market")["rmse"].transform("min")
-    screen["wins"] = screen["rmse"] <= best
+    screen["wins"] = _winners(screen, rmse_influence_columns(result, ranked), ranked)
     grouped = screen.groupby(keys, sort=False)
     summary = pd.DataFrame({
         "win_share": grouped["wins"].mean(),
@@ -190,6 +203,7 @@ def choose_design_robustly(
         f"Every candidate simulated exactly at the central market ({replications} "
         f"replications), then screened on {len(markets)} plausible markets with the "
         "large-market model corrected by the simulation's finite-market gap.",
+        f"A candidate wins on a market by the rule of choose_design: {TIE_RULE}.",
     ]
     if not confirmed:
         notes.append("At the central market the simulation prefers another candidate by "
@@ -213,13 +227,28 @@ def _screen_rows(markets, treatment, arms, horizon, metric) -> list[dict]:
     return rows
 
 
+def _winners(screen: pd.DataFrame, influence: np.ndarray,
+             ranked: pd.DataFrame) -> np.ndarray:
+    """Whether each screen row is its market's preferred candidate by the tie rule, with
+    the paired Monte Carlo errors of the central simulation (``influence`` has one
+    column per row of ``ranked``)."""
+    column = {key: k for k, key in enumerate(zip(ranked.arm, ranked.estimator))}
+    wins = np.zeros(len(screen), dtype=bool)
+    for _, rows in screen.groupby("market", sort=False):
+        rmse, bias = rows["rmse"].to_numpy(), rows["bias"].to_numpy()
+        columns = [column[key] for key in zip(rows.arm, rows.estimator)]
+        errors = paired_rmse_errors(influence[:, columns], int(np.argmin(rmse)))
+        best = preference_order(rmse, bias, tied_with_best(rmse, errors))[0]
+        wins[screen.index.get_loc(rows.index[best])] = True
+    return wins
+
+
 def _confirmed(confirmation: pd.DataFrame, recommended: pd.Series) -> bool:
-    """Whether the recommended candidate is best in the central simulation, or within
-    two Monte Carlo standard errors of the best."""
+    """Whether the recommended candidate is practically tied for best in the central
+    simulation (:data:`~marketsim.planning.choice.TIE_RULE`)."""
     mine = confirmation[(confirmation.arm == recommended["arm"])
                         & (confirmation.estimator == recommended["estimator"])].iloc[0]
-    best = confirmation.loc[confirmation.rmse.idxmin()]
-    return bool(mine.rmse - best.rmse <= 2 * np.hypot(mine.rmse_mc_se, best.rmse_mc_se))
+    return bool(mine.tied)
 
 
 __all__ = ["RobustDesignChoice", "choose_design_robustly"]

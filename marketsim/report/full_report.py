@@ -20,7 +20,7 @@ from marketsim.meanfield.figures import plot_balance_sweep
 from marketsim.model import Market, Treatment
 from marketsim.model.scenario_file import Scenario
 from marketsim.planning import default_candidates, plan_horizon, power_table, readable_duration
-from marketsim.planning.choice import choice_from_result
+from marketsim.planning.choice import DesignChoice, choice_from_result
 from marketsim.randomness import SeedLike, spawn
 from marketsim.report.calibration import calibration_section
 from marketsim.report.markdown import Report
@@ -213,9 +213,9 @@ def sweep_section(report: Report, scenario: Scenario) -> pd.DataFrame:
 
 
 def plan_section(report: Report, scenario: Scenario, result: StudyResult, arms: list[Arm],
-                 replications: int, seed: SeedLike, workers: int) -> None:
+                 replications: int, seed: SeedLike, workers: int) -> DesignChoice:
     """Design choice at the planned horizon (from the study) and the horizon for the
-    minimum effect."""
+    minimum effect; returns the choice."""
     market, treatment, unit = scenario.market, scenario.treatment, scenario.time_unit
     choice = choice_from_result(rows_of(result, {arm.label for arm in arms}), arms, market)
     best = choice.recommended
@@ -249,6 +249,7 @@ def plan_section(report: Report, scenario: Scenario, result: StudyResult, arms: 
     report.text(plan.report().replace("\n", "\n\n"))
     print(choice.report())
     print(plan.report())
+    return choice
 
 
 def write_full_report(scenario: Scenario, replications: int | None = None,
@@ -302,9 +303,10 @@ def write_full_report(scenario: Scenario, replications: int | None = None,
     print_study(standard, scenario.time_unit)
     study_section(report, standard, scenario)
     sweep_section(report, scenario)
-    plan_section(report, scenario, result, arms, replications, plan_seed, workers)
+    choice = plan_section(report, scenario, result, arms, replications, plan_seed, workers)
     if calibration:
-        calibration_section(report, scenario, replications, calibration_seed, workers)
+        calibration_section(report, scenario, replications, calibration_seed, workers,
+                            choice)
     report.heading("What these numbers are worth")
     report.text(CAVEAT)
     path = report.write()
