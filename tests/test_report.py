@@ -8,7 +8,7 @@ import pytest
 
 import marketsim as ms
 from marketsim.report.full_report import write_full_report
-from marketsim.report.wording import coverage_sentence
+from marketsim.report.wording import coverage_band, coverage_sentence, standard_error_sentence
 
 
 def test_coverage_sentence_names_only_the_estimators_that_undercover():
@@ -27,6 +27,35 @@ def test_coverage_sentence_names_only_the_estimators_that_undercover():
     within = text.split("Within Monte Carlo error of 95%:")[1]
     assert "two, corrected (k=2) (0.97)" in within and "three, listing-side (0.92)" in within
     assert "significantly less often" in coverage_sentence(table.iloc[[1, 2]])
+
+
+def test_standard_error_sentence_follows_its_rule():
+    """Trust the kind whose coverage is in the central 95% band of Binomial(n, 0.95) / n
+    (scipy.stats.binom; 400 replications: 371 to 388 hits, i.e. 0.9275 to 0.97) with
+    s.e./sd nearest 1; when neither covers, name the one nearest the real spread."""
+    from scipy.stats import binom
+
+    assert coverage_band(400) == tuple(x / 400 for x in binom.interval(0.95, 400, 0.95))
+    assert coverage_band(400) == (0.9275, 0.97)
+    table = pd.DataFrame({
+        "arm": ["batch wins", "both cover", "neither", "no batches", "wide naive"],
+        "estimator": ["e1", "e2", "e3", "e4", "e5"], "replications": [400] * 5,
+        "coverage": [0.99, 0.93, 0.70, 0.95, 0.94],
+        "naive_se_ratio": [1.35, 0.96, 1.20, 1.0, 1.40],
+        "batch_coverage": [0.95, 0.96, 0.72, float("nan"), 0.85],
+        "batch_se_ratio": [1.01, 1.05, 0.98, float("nan"), 1.02],
+    })
+    text = standard_error_sentence(table)
+    trusted, neither = text.split("Neither kind covers as claimed for ")
+    assert "batch wins, e1: batch means (coverage 0.95, s.e./sd 1.01; naive 0.99, 1.35)" \
+        in trusted
+    # both in the band: 0.96 is nearer 1 than 1.05
+    assert "both cover, e2: naive (coverage 0.93, s.e./sd 0.96" in trusted
+    assert "no batches, e4: naive (coverage 0.95, s.e./sd 1.00)" in trusted
+    assert ("wide naive, e5: naive (coverage 0.94, s.e./sd 1.40; batch means 0.85, 1.02), "
+            "whose intervals cover although batch means is nearer the real spread") in trusted
+    assert neither.startswith("neither, e3 (a bias makes every interval miss); the nearest "
+                              "the real spread is batch means (coverage 0.72, s.e./sd 0.98")
 
 
 @pytest.fixture(scope="module")
@@ -52,6 +81,9 @@ def test_report_has_one_truth_and_one_label_per_design(demo_report):
     assert "customer-side 0.5" not in text and "for balance 0." not in text
     assert "one truth" in first
     assert "differs from it by Monte Carlo error" in choice
+    # section 1 scores both standard errors and says which to trust (336 h: 20 batches)
+    assert "batch_coverage" in first and "20 consecutive batches" in first
+    assert "Which standard error to trust" in first or "Neither kind covers" in first
 
 
 def test_report_states_the_crossing_by_root_finding_and_where_the_market_sits(demo_report):

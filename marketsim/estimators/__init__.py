@@ -34,6 +34,15 @@ multinomial within its group: the customer-side standard error is the familiar
 ``sqrt(p_1 (1 - p_1) / n_1 + p_0 (1 - p_0) / n_0)``. Interference between units
 makes these wrong, which is exactly what a study measures (interval coverage).
 
+Batch-means standard error
+--------------------------
+From the one run too, but allowing for the market's memory: a ledger with time
+bins (``bins=`` of :func:`marketsim.simulate`; a study uses ``Study.batches``)
+gives each estimate ``Estimate.batch_se``, the standard deviation of the
+estimator applied to each bin over ``sqrt(bins)``, with a Student t interval
+(:mod:`marketsim.estimators.batches`: the method, the rule for the number of
+batches and its checks).
+
 Checks
 ------
 Every formula (values and naive standard errors, all three metrics) is checked

@@ -3,31 +3,57 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from marketsim import _validation as check
 from marketsim.designs import CellSplit
 from marketsim.engine.ledger import Ledger
+from marketsim.estimators.batches import batch_standard_error, t_quantile
 
 METRICS = ("bookings", "revenue", "conversion")
 
 
+SE_KINDS = ("naive", "batch means")
+"""The kinds of standard error an :class:`Estimate` carries."""
+
+
 @dataclass(frozen=True)
 class Estimate:
-    """One estimate with the naive standard error an analyst would report."""
+    """One estimate with each kind of standard error.
+
+    Attributes
+    ----------
+    value : float
+    standard_error : float
+        The naive standard error an analyst would report (independent units; see
+        :mod:`marketsim.estimators`).
+    batch_se : float
+        The batch-means standard error over time (:mod:`marketsim.estimators.batches`):
+        NaN when the ledger has fewer than 2 time bins.
+    batches : int
+        Number of batches behind ``batch_se`` (0 without bins).
+    """
 
     value: float
     standard_error: float
+    batch_se: float = math.nan
+    batches: int = 0
 
-    def interval(self, level: float = 0.95) -> tuple[float, float]:
-        """Normal-theory confidence interval at ``level``."""
+    def interval(self, level: float = 0.95, kind: str = "naive") -> tuple[float, float]:
+        """Confidence interval at ``level``: normal-theory with the naive standard
+        error, or Student t on ``batches - 1`` degrees of freedom with the
+        batch-means one (``kind="batch means"``; NaN bounds without batches)."""
         from scipy.stats import norm
 
         level = check.number("level", level, low=0.0, high=1.0, low_open=True,
                              high_open=True)
-        half = norm.ppf(0.5 + level / 2.0) * self.standard_error
+        check.choice("kind", kind, SE_KINDS)
+        if kind == "naive":
+            half = norm.ppf(0.5 + level / 2.0) * self.standard_error
+        else:
+            half = t_quantile(level, self.batches) * self.batch_se
         return self.value - half, self.value + half
 
 
@@ -50,6 +76,11 @@ class GroupTotals:
     scale : float
         Divisor turning totals into ``Q_xy``: the window, or for conversion the
         number of arrivals (at least 1).
+    batch_totals : ndarray, shape (n_batches, n_listing_types, 2, 2)
+        ``totals`` of each time bin that lies wholly in the window (none when the
+        ledger has no bins).
+    batch_scales : ndarray, shape (n_batches,)
+        ``scale`` of each of those bins (its length, or for conversion its arrivals).
     """
 
     metric: str
@@ -57,6 +88,8 @@ class GroupTotals:
     squares: np.ndarray
     arrivals: np.ndarray
     scale: float
+    batch_totals: np.ndarray = field(default_factory=lambda: np.zeros((0, 0, 2, 2)))
+    batch_scales: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
     @classmethod
     def of(cls, ledger: Ledger, metric: str = "bookings") -> GroupTotals:
@@ -82,13 +115,30 @@ class GroupTotals:
         arrivals = np.zeros(2)
         np.add.at(arrivals, customer[:, 0], np.asarray(ledger.arrivals, dtype=float))
         scale = ledger.window if metric != "conversion" else max(ledger.arrival_count, 1.0)
-        return cls(metric, totals, squares, arrivals, float(scale))
+        # Bins wholly inside the window (an interrupted run's ledger stops early).
+        whole = ledger.bin_edges[1:] <= ledger.window * (1.0 + 1e-12)
+        bins = np.asarray(ledger.bin_bookings, dtype=float)[whole] * value
+        kind_of = np.eye(shape[0])[cells.split.listing_type]              # (L, J)
+        listing_of = np.eye(2)[cells.split.listing_treated.astype(int)]   # (L, 2)
+        customer_of = np.eye(2)[customer[:, 0]]                           # (C, 2)
+        batch_totals = np.einsum("bcl,cx,lj,ly->bjxy", bins, customer_of, kind_of,
+                                 listing_of)
+        if metric == "conversion":
+            batch_scales = np.asarray(ledger.bin_arrivals, dtype=float)[whole].sum(axis=1)
+        else:
+            batch_scales = np.diff(ledger.bin_edges)[whole]
+        return cls(metric, totals, squares, arrivals, float(scale), batch_totals,
+                   batch_scales)
 
     def combine(self, weights: np.ndarray) -> Estimate:
-        """``sum(weights * Q)`` with its naive standard error (see the module notes).
+        """``sum(weights * Q)`` with its naive standard error (see the module notes)
+        and, with 2 or more batches, its batch-means standard error.
 
         ``weights`` has shape (n_listing_types, 2, 2), as from
-        :meth:`Estimator.stratum_weights`.
+        :meth:`Estimator.stratum_weights`. The batch values are ``value + (sum(weights
+        * batch_totals[b]) - value * batch_scales[b]) / mean(batch_scales)``: for
+        rates, the estimate on batch ``b`` alone; for conversion, its linearisation
+        (a ratio of bookings to arrivals).
         """
         value = float(np.sum(weights * self.totals)) / self.scale
         if self.metric != "conversion":
@@ -100,7 +150,15 @@ class GroupTotals:
                     spread = float(np.sum(weights[:, x] ** 2 * self.squares[:, x]))
                     mean = float(np.sum(weights[:, x] * self.totals[:, x]))
                     variance += max(spread - mean**2 / self.arrivals[x], 0.0)
-        return Estimate(value, math.sqrt(variance) / self.scale)
+        k = self.batch_totals.shape[0]
+        batch_se = math.nan
+        if k >= 2 and self.batch_scales.mean() > 0:
+            # The estimate of each batch, linearised around the run's (the delta method
+            # for conversion's ratio; for rates it is exactly the batch's own estimate).
+            per_batch = np.einsum("bjxy,jxy->b", self.batch_totals, weights)
+            values = value + (per_batch - value * self.batch_scales) / self.batch_scales.mean()
+            batch_se = batch_standard_error(values)
+        return Estimate(value, math.sqrt(variance) / self.scale, batch_se, k)
 
     def analysis_split(self, split: CellSplit) -> CellSplit:
         """The split at which coefficients are evaluated: ``split`` itself, except for
@@ -145,4 +203,4 @@ def metric_rate(ledger: Ledger, metric: str = "bookings") -> float:
     return float(groups.totals.sum() / groups.scale)
 
 
-__all__ = ["METRICS", "Estimate", "GroupTotals", "group_rates", "metric_rate"]
+__all__ = ["METRICS", "SE_KINDS", "Estimate", "GroupTotals", "group_rates", "metric_rate"]

@@ -45,7 +45,9 @@ def analysis_text(analysis: ExperimentAnalysis) -> str:
         "Arms:", balance.to_string(index=False), "",
         "Group rates Q_xy (bookings per unit time):",
         analysis.group_rates.to_string(index=False), "",
-        "Estimates (naive 95% intervals):", analysis.estimates.to_string(index=False), "",
+        "Estimates (naive 95% intervals; batch means over "
+        f"{analysis.estimates.attrs['batches']} batches with t intervals):",
+        analysis.estimates.to_string(index=False), "",
     ]
     lines.extend(f"Note: {note}" for note in analysis.notes)
     return "\n".join(lines)

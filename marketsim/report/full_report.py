@@ -24,7 +24,7 @@ from marketsim.planning.choice import DesignChoice, choice_from_result
 from marketsim.randomness import SeedLike, spawn
 from marketsim.report.calibration import calibration_section
 from marketsim.report.markdown import Report
-from marketsim.report.wording import coverage_sentence
+from marketsim.report.wording import coverage_sentence, standard_error_sentence
 from marketsim.study import CAVEAT, Arm, Study, StudyResult, default_workers
 
 DEFAULT_REPLICATIONS = 200
@@ -130,18 +130,22 @@ def study_section(report: Report, result: StudyResult, scenario: Scenario) -> No
         "simulations serve the design choice of section 3, so the report has one truth. "
         "Relative bias is the bias in percent of that effect; `mean_naive_se` is the "
         "standard error an analyst would report; `coverage` is how often the nominal 95% "
-        "interval contains the truth."
+        "interval contains the truth. `mean_batch_se` and `batch_coverage` are the same for "
+        f"the batch-means standard error, computed from one experiment's {result.batches} "
+        "consecutive batches of its window, which allows for the market's memory."
     )
     columns = ["arm", "estimator", "mean_estimate", "bias", "bias_mc_se", "relative_bias",
-               "sd", "mean_naive_se", "rmse", "coverage"]
+               "sd", "mean_naive_se", "rmse", "coverage", "mean_batch_se", "batch_coverage"]
     report.table(result.summary[columns], {
         "mean_estimate": "{:.3f}", "bias": "{:+.3f}", "bias_mc_se": "{:.3f}",
         "relative_bias": "{:+.0%}", "sd": "{:.3f}", "mean_naive_se": "{:.3f}",
-        "rmse": "{:.3f}", "coverage": "{:.0%}"})
+        "rmse": "{:.3f}", "coverage": "{:.0%}", "mean_batch_se": "{:.3f}",
+        "batch_coverage": "{:.0%}"})
     report.figure(result.plot(), "study.png",
                   "Relative bias (in % of the true effect) and RMSE per design and estimator "
                   "(+-2 Monte Carlo s.e.)")
     report.text(coverage_sentence(result.summary))
+    report.text(standard_error_sentence(result.summary))
     report.text(
         f"What the analyst's test will do over {scenario.horizon:g} {unit}s: a two-sided test "
         "at the 5% level that divides the estimate by the standard error it reports "

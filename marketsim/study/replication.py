@@ -14,7 +14,7 @@ import pandas as pd
 from marketsim.engine import MarketCells, run_cells
 from marketsim.estimators import Estimator, GroupTotals, metric_rate
 
-VALUE_COLUMNS = ["estimate", "naive_se", "replication_truth", "global_control",
+VALUE_COLUMNS = ["estimate", "naive_se", "batch_se", "replication_truth", "global_control",
                  "global_treatment", "events"]
 """Numbers of each row of a stored chunk (besides its replication and labels)."""
 
@@ -34,6 +34,7 @@ class Plan:
     metrics: tuple[str, ...]
     horizon: float
     burn_in: float
+    batches: int
 
     @property
     def n_rows(self) -> int:
@@ -47,6 +48,7 @@ class Outcome:
     levels: np.ndarray      # (n_metrics, 2): global control, global treatment
     estimates: np.ndarray   # (n_rows,)
     errors: np.ndarray      # (n_rows,) naive standard errors
+    batch_errors: np.ndarray  # (n_rows,) batch-means standard errors
     events: int
 
 
@@ -65,10 +67,11 @@ def replicate(plan: Plan, root: tuple, index: int) -> Outcome:
         levels[m, 1] = metric_rate(treated, metric)
     estimates = np.empty(plan.n_rows)
     errors = np.empty(plan.n_rows)
+    batch_errors = np.empty(plan.n_rows)
     events = control.events + treated.events
     row = 0
     for a, cells in enumerate(plan.arm_cells):
-        ledger = run_cells(cells, start=plan.arm_starts[a], **runs)
+        ledger = run_cells(cells, start=plan.arm_starts[a], bins=plan.batches, **runs)
         events += ledger.events
         groups = [GroupTotals.of(ledger, metric) for metric in plan.metrics]
         splits = [g.analysis_split(cells.split) for g in groups]
@@ -83,8 +86,9 @@ def replicate(plan: Plan, root: tuple, index: int) -> Outcome:
                     result = groups[m].combine(
                         estimator.stratum_weights(splits[m], cells.market))
                 estimates[row], errors[row] = result.value, result.standard_error
+                batch_errors[row] = result.batch_se
                 row += 1
-    return Outcome(levels, estimates, errors, int(events))
+    return Outcome(levels, estimates, errors, batch_errors, int(events))
 
 
 @dataclass(frozen=True, eq=False)
@@ -97,8 +101,8 @@ class Replicated:
         Replication indices.
     levels : ndarray, shape (n, n_metrics, 2)
         Metric in the global control and global treatment worlds.
-    estimates, errors : ndarray, shape (n, n_rows)
-        Estimate and naive standard error of each summary row.
+    estimates, errors, batch_errors : ndarray, shape (n, n_rows)
+        Estimate, naive and batch-means standard error of each summary row.
     events : ndarray of int, shape (n,)
         Simulated events of the replication (all worlds and arms).
     """
@@ -107,17 +111,20 @@ class Replicated:
     levels: np.ndarray
     estimates: np.ndarray
     errors: np.ndarray
+    batch_errors: np.ndarray
     events: np.ndarray
 
     @classmethod
     def of(cls, outcomes: dict) -> Replicated:
-        """From a dict ``index -> outcome`` (outcomes have levels, estimates, errors, events)."""
+        """From a dict ``index -> outcome`` (outcomes have levels, estimates, errors,
+        batch_errors, events)."""
         order = sorted(outcomes)
         return cls(
             order=np.array(order, dtype=np.int64),
             levels=np.stack([outcomes[r].levels for r in order]),
             estimates=np.stack([outcomes[r].estimates for r in order]),
             errors=np.stack([outcomes[r].errors for r in order]),
+            batch_errors=np.stack([outcomes[r].batch_errors for r in order]),
             events=np.array([outcomes[r].events for r in order], dtype=np.int64),
         )
 
@@ -133,6 +140,7 @@ class Replicated:
                            shaped["global_treatment"][:, first]], axis=2)
         return cls(order=_order_of(table, n, k_rows), levels=levels,
                    estimates=shaped["estimate"], errors=shaped["naive_se"],
+                   batch_errors=shaped["batch_se"],
                    events=shaped["events"][:, 0].astype(np.int64))
 
     def table(self, rows: pd.DataFrame, metrics: Sequence[str]) -> pd.DataFrame:
@@ -147,6 +155,7 @@ class Replicated:
                for name in ("arm", "design", "estimator", "metric")},
             "estimate": self.estimates.reshape(-1),
             "naive_se": self.errors.reshape(-1),
+            "batch_se": self.batch_errors.reshape(-1),
             "replication_truth": effects[:, by_row].reshape(-1),
             "global_control": self.levels[:, by_row, 0].reshape(-1),
             "global_treatment": self.levels[:, by_row, 1].reshape(-1),

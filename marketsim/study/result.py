@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from marketsim import _validation as check
+from marketsim.estimators.batches import t_quantile
 from marketsim.power import critical_value
 from marketsim.study.replication import VALUE_COLUMNS, Replicated
 
@@ -29,9 +30,18 @@ SUMMARY_COLUMNS = (
     "arm", "design", "estimator", "metric", "truth", "truth_mc_se", "mean_estimate",
     "bias", "bias_mc_se", "relative_bias", "relative_bias_mc_se", "sd", "rmse",
     "rmse_mc_se", "mean_naive_se", "coverage", "coverage_mc_se", "replications",
+    "naive_se_ratio", "mean_batch_se", "batch_se_ratio", "batch_coverage",
+    "batch_coverage_mc_se",
 )
+SE_COLUMNS = {
+    "naive": ("mean_naive_se", "naive_se_ratio", "coverage", "coverage_mc_se"),
+    "batch means": ("mean_batch_se", "batch_se_ratio", "batch_coverage",
+                    "batch_coverage_mc_se"),
+}
+"""Summary columns of each kind of standard error: mean s.e., mean s.e. over sd,
+coverage of the nominal 95% interval and its Monte Carlo standard error."""
 REPLICATION_COLUMNS = ("replication", "arm", "design", "estimator", "metric", "estimate",
-                       "naive_se", "replication_truth")
+                       "naive_se", "batch_se", "replication_truth")
 
 
 @dataclass(frozen=True, eq=False)
@@ -69,14 +79,21 @@ class StudyResult:
           ``e_r +- 1.96 s_r`` contains ``T``; ``coverage_mc_se``:
           ``sqrt(c (1 - c) / n)``.
         - ``replications``: ``n``.
+        - ``naive_se_ratio``: ``mean_naive_se / sd``: 1 when the naive standard
+          error measures the estimator's real spread.
+        - ``mean_batch_se``, ``batch_se_ratio``, ``batch_coverage``,
+          ``batch_coverage_mc_se``: the same for the batch-means standard error
+          ``b_r`` of each replication's run (:mod:`marketsim.estimators.batches`,
+          :attr:`Study.batches` batches), whose interval is ``e_r +- t b_r`` with
+          ``t`` the 97.5% Student t quantile on ``batches - 1`` degrees of freedom.
 
         Every figure carries Monte Carlo error and rests on the model's
         assumptions; see :attr:`caveats`.
     replications : pandas.DataFrame
         The raw figures, one row per replication x arm x estimator x metric:
         ``replication`` (index ``r``), ``arm``, ``design``, ``estimator``,
-        ``metric``, ``estimate``, ``naive_se`` and ``replication_truth`` (the
-        global effect ``t_r`` of that replication).
+        ``metric``, ``estimate``, ``naive_se``, ``batch_se`` and
+        ``replication_truth`` (the global effect ``t_r`` of that replication).
     completed : int
         Replications that finished.
     requested : int
@@ -89,6 +106,8 @@ class StudyResult:
         Wall time of the run in seconds.
     workers : int
         Worker processes used.
+    batches : int
+        Batches behind the batch-means standard errors (:attr:`Study.batches`).
     """
 
     truth: pd.DataFrame
@@ -100,6 +119,7 @@ class StudyResult:
     events_per_replication: float
     elapsed: float
     workers: int
+    batches: int
 
     @property
     def caveats(self) -> str:
@@ -142,6 +162,10 @@ class StudyResult:
                              f"{str(store)!r}), got {study}")
         labels = pd.DataFrame(asked[study]["rows"],
                               columns=["arm", "design", "estimator", "metric"])
+        if "batches" not in asked[study]:
+            raise ValueError(f"store {str(store)!r} was made by an earlier marketsim, "
+                             "without batch-means standard errors: run the study again "
+                             "into a new store")
         metrics = tuple(asked[study]["metrics"])
         runs = opened.manifest["runs"]
         last = runs[-1] if runs else {"replications": 0}
@@ -153,7 +177,8 @@ class StudyResult:
         table = opened.read(study, done, len(labels), VALUE_COLUMNS)
         return summarize(metrics, labels, Replicated.from_table(table, labels, metrics),
                          requested, len(done) < requested,
-                         float(last.get("elapsed", math.nan)), int(last.get("workers", 0)))
+                         float(last.get("elapsed", math.nan)), int(last.get("workers", 0)),
+                         batches=int(asked[study]["batches"]))
 
     def to_frame(self) -> pd.DataFrame:
         """The summary table (a copy)."""
@@ -215,10 +240,11 @@ def zero_effect_note(metrics: list[str]) -> str:
 
 def summarize(metrics: tuple[str, ...], labels: pd.DataFrame, figures: Replicated,
               requested: int, interrupted: bool, elapsed: float,
-              workers: int) -> StudyResult:
+              workers: int, *, batches: int) -> StudyResult:
     """Score the finished replications (``figures``) against their truths.
 
-    ``labels`` holds the summary's rows in order (:meth:`Study.rows`).
+    ``labels`` holds the summary's rows in order (:meth:`Study.rows`); ``batches``
+    is the number of batches behind the batch-means standard errors.
     """
     n = figures.order.size
     levels, estimates, errors = figures.levels, figures.estimates, figures.errors
@@ -246,17 +272,23 @@ def summarize(metrics: tuple[str, ...], labels: pd.DataFrame, figures: Replicate
     for k, label in enumerate(labels.itertuples(index=False)):
         m = metric_index[label.metric]
         e, s, t = estimates[:, k], errors[:, k], effects[:, m]
-        rows.append({**label._asdict(), **_score(e, s, t)})
+        batch = figures.batch_errors[:, k]
+        rows.append({**label._asdict(), **_score(e, t),
+                     **_se_score(e, s, t, Z_95, SE_COLUMNS["naive"]),
+                     **_se_score(e, batch, t, t_quantile(0.95, batches),
+                                 SE_COLUMNS["batch means"])})
     summary = pd.DataFrame(rows, columns=list(SUMMARY_COLUMNS))
 
     raw = figures.table(labels, metrics)[list(REPLICATION_COLUMNS)]
     return StudyResult(truth=truth, summary=summary, replications=raw, completed=n,
                        requested=requested, interrupted=interrupted,
-                       events_per_replication=events, elapsed=elapsed, workers=workers)
+                       events_per_replication=events, elapsed=elapsed, workers=workers,
+                       batches=batches)
 
 
-def _score(e: np.ndarray, s: np.ndarray, t: np.ndarray) -> dict[str, float]:
-    """Summary figures of one estimator: estimates ``e``, naive s.e. ``s``, truths ``t``."""
+def _score(e: np.ndarray, t: np.ndarray) -> dict[str, float]:
+    """Summary figures of one estimator's estimates ``e`` against the truths ``t``
+    (those of its standard errors: :func:`_se_score`)."""
     n = e.size
     root = math.sqrt(n)
     truth = float(t.mean())
@@ -272,7 +304,6 @@ def _score(e: np.ndarray, s: np.ndarray, t: np.ndarray) -> dict[str, float]:
     deviation = e - truth
     rmse = math.sqrt(float(np.mean(deviation**2)))
     rmse_se = float(np.std(rmse_influence(e, t), ddof=1) / root)
-    covered = float(np.mean(np.abs(deviation) <= Z_95 * s))
     return {
         "truth": truth,
         "truth_mc_se": float(t.std(ddof=1) / root),
@@ -284,11 +315,22 @@ def _score(e: np.ndarray, s: np.ndarray, t: np.ndarray) -> dict[str, float]:
         "sd": float(e.std(ddof=1)),
         "rmse": rmse,
         "rmse_mc_se": rmse_se,
-        "mean_naive_se": float(s.mean()),
-        "coverage": covered,
-        "coverage_mc_se": math.sqrt(covered * (1.0 - covered) / n),
         "replications": n,
     }
+
+
+def _se_score(e: np.ndarray, s: np.ndarray, t: np.ndarray, quantile: float,
+              columns: tuple[str, str, str, str]) -> dict[str, float]:
+    """How one kind of standard error ``s_r`` does, under the names ``columns``: its
+    mean, the ratio of that to the standard deviation of ``e_r``, and the coverage
+    (with its Monte Carlo error) of ``e_r +- quantile * s_r`` around the truth
+    ``mean(t_r)``."""
+    n = e.size
+    spread = float(e.std(ddof=1))
+    covered = float(np.mean(np.abs(e - t.mean()) <= quantile * s))
+    ratio = float(s.mean()) / spread if spread > 0 else math.nan
+    coverage_se = math.sqrt(covered * (1.0 - covered) / n)
+    return dict(zip(columns, (float(s.mean()), ratio, covered, coverage_se)))
 
 
 def rmse_influence(e: np.ndarray, t: np.ndarray) -> np.ndarray:
@@ -310,4 +352,4 @@ def rmse_influence(e: np.ndarray, t: np.ndarray) -> np.ndarray:
     return (deviation**2 - 2.0 * bias * (t - truth)) / (2.0 * rmse)
 
 
-__all__ = ["StudyResult", "SUMMARY_COLUMNS", "CAVEAT", "summarize", "rmse_influence"]
+__all__ = ["StudyResult", "SUMMARY_COLUMNS", "SE_COLUMNS", "CAVEAT", "summarize", "rmse_influence"]

@@ -140,7 +140,8 @@ def run_studies(studies: Sequence, replications: int, seed: SeedLike, *, kind: s
                 table = opened.read(j, finished, len(rows[j]), VALUE_COLUMNS)
                 figures = Replicated.from_table(table, rows[j], study.metrics)
         results.append(None if figures is None else summarize(
-            study.metrics, rows[j], figures, count, figures.order.size < count, elapsed, used))
+            study.metrics, rows[j], figures, count, figures.order.size < count, elapsed, used,
+            batches=study.batches))
     if opened is not None:
         opened.end_run(workers=used, elapsed=round(elapsed, 3), interrupted=interrupted)
     return results, interrupted

@@ -13,6 +13,7 @@ from marketsim import _validation as check
 from marketsim.designs import Design, GlobalControl, GlobalTreatment
 from marketsim.engine import START_OPTIONS, MarketCells, build_cells
 from marketsim.estimators import METRICS, Estimator
+from marketsim.estimators.batches import check_batches
 from marketsim.model import Market, Treatment
 from marketsim.randomness import SeedLike
 from marketsim.study.arms import Arm, arm_list
@@ -49,6 +50,12 @@ class Study:
         warm start that shortens the burn-in needed; with busy times that are
         not exponential, busy listings start with remaining times drawn from
         the equilibrium law; see :func:`marketsim.simulate`).
+    batches : int, optional
+        Number of consecutive batches each experiment's window is cut into for
+        its batch-means standard error (:mod:`marketsim.estimators.batches`),
+        >= 2. Default: 20, fewer when batches would be shorter than 5 mean busy
+        times (:func:`~marketsim.estimators.batches.default_batches`); a warning
+        when a batch is shorter than one mean busy time.
 
     Notes
     -----
@@ -85,6 +92,7 @@ class Study:
         burn_in: float = 0.0,
         metric: str | Sequence[str] = "bookings",
         start: str = "empty",
+        batches: int | None = None,
     ) -> None:
         if not isinstance(market, Market):
             raise ValueError(f"market must be a marketsim.Market, got {type(market).__name__}")
@@ -100,6 +108,7 @@ class Study:
         self.metrics = _metrics(metric, market)
         self.arms = arm_list(arms)
         self.start = check.choice("start", start, START_OPTIONS)
+        self.batches = check_batches(batches, market, self.horizon)
         self.estimators = tuple(arm.resolve(market) for arm in self.arms)
         self._plan = self._build_plan()
 
@@ -125,7 +134,7 @@ class Study:
             arm_cells=tuple(c for c, _ in arm_worlds),
             arm_starts=tuple(s for _, s in arm_worlds),
             arm_estimators=self.estimators, arm_weights=weights, metrics=self.metrics,
-            horizon=self.horizon, burn_in=self.burn_in,
+            horizon=self.horizon, burn_in=self.burn_in, batches=self.batches,
         )
 
     def rows(self) -> pd.DataFrame:
@@ -232,7 +241,7 @@ class Study:
         return (
             f"Study({self.market!r}, {self.treatment!r}, arms=[{arms}], "
             f"horizon={self.horizon:g}, burn_in={self.burn_in:g}, "
-            f"metrics={list(self.metrics)})"
+            f"metrics={list(self.metrics)}, batches={self.batches})"
         )
 
 
