@@ -62,3 +62,10 @@ def engine_streams(seed: SeedLike) -> tuple[np.random.Generator, ...]:
     lowers the Monte Carlo error of their difference.
     """
     return tuple(np.random.Generator(np.random.PCG64(child)) for child in spawn(seed, 3))
+
+
+def schedule_stream(seed: SeedLike) -> np.random.Generator:
+    """The generator that draws a switchback's random assignment of blocks: a fourth
+    child of ``seed``, independent of the three :func:`engine_streams` (which it
+    leaves unchanged), and the same for every run with this seed."""
+    return np.random.Generator(np.random.PCG64(spawn(seed, 4)[3]))

@@ -207,7 +207,13 @@ def test_scenario_file_chooses_designs_target_and_replications(capsys, tmp_path)
 
 
 @pytest.mark.parametrize("experiment, message", [
-    ({"designs": [{"design": "switchback"}]}, "experiment.designs[0].design must be one of"),
+    ({"designs": [{"design": "cluster"}]}, "experiment.designs[0].design must be one of"),
+    ({"designs": [{"design": "switchback"}]},
+     "experiment.designs[0] (a switchback) needs block_length"),
+    ({"designs": [{"design": "switchback", "block_length": 2, "burn_in": 2}]},
+     "experiment.designs[0].burn_in must be shorter than block_length, got burn_in=2"),
+    ({"designs": [{"design": "switchback", "block_length": 2, "assignment": "daily"}]},
+     "experiment.designs[0].assignment must be one of 'random', 'alternating', got 'daily'"),
     ({"designs": [{"design": "listing-side", "listings": 0.5}]},
      "experiment.designs[0] has an unknown key 'listings'"),
     ({"designs": [{"design": "two-sided", "customers": 1.5}]},

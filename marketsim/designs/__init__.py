@@ -28,9 +28,13 @@ from marketsim.designs.randomized import (
     listing_rounding_note,
 )
 from marketsim.designs.split import CellSplit
+from marketsim.designs.switchback import ASSIGNMENTS, BlockSchedule, Switchback
 
 __all__ = [
+    "ASSIGNMENTS",
+    "BlockSchedule",
     "CellSplit",
+    "Switchback",
     "Design",
     "GlobalControl",
     "GlobalTreatment",

@@ -147,6 +147,8 @@ class KernelRun:
         self.bin_bookings = np.zeros((n_bins, n_customer, n_listing), dtype=np.int64)
         self.bin_arrivals = np.zeros((n_bins, n_customer), dtype=np.int64)
         self.share_cdf = np.cumsum(cells.customer_share)
+        self.choice = (cells.outside_weight, cells.weight, cells.consideration)
+        self.recording = (self.available_time, self.bin_bookings, self.bin_arrivals)
         self.demand = demand_arrays(cells.market.demand)
         if self.engine == "general":
             self._set_up_heap()
@@ -190,14 +192,37 @@ class KernelRun:
         """Simulated time reached."""
         return float(self.clock[0])
 
+    def enter_piece(self, start: float, end: float, choice: MarketCells,
+                    recording: tuple[np.ndarray, np.ndarray, np.ndarray] | None) -> None:
+        """Go on to the piece ``[start, end)`` of a schedule (a switchback's blocks).
+
+        The market's state carries over; only the choice weights (those of
+        ``choice``, cells of the same shape) and where the piece's counts go
+        change. ``recording`` is ``(available_time, bin_bookings, bin_arrivals)``
+        with one bin (the piece's block), or None for a piece that is not
+        recorded (a block's burn-in).
+        """
+        self.choice = (choice.outside_weight, choice.weight, choice.consideration)
+        self.end = end
+        if recording is None:
+            n_customer, n_listing = self.bookings.shape
+            self.burn_in = end
+            self.recording = (np.zeros(n_listing), np.zeros((0, n_customer, n_listing),
+                                                            dtype=np.int64),
+                              np.zeros((0, n_customer), dtype=np.int64))
+        else:
+            self.burn_in = start
+            self.last_change[:] = start
+            self.recording = recording
+
     def step(self, max_events: int) -> bool:
         """Simulate at most ``max_events`` more events; True once the run has ended."""
         cells = self.cells
         piece_ends, multipliers, period = self.demand
-        head = (cells.arrival_rate, self.share_cdf, cells.outside_weight, cells.weight,
-                cells.consideration, piece_ends, multipliers, period)
+        head = (cells.arrival_rate, self.share_cdf, *self.choice, piece_ends, multipliers,
+                period)
         tail = (self.burn_in, self.end, max_events, *self.streams, self.bookings,
-                self.arrivals, self.available_time, self.bin_bookings, self.bin_arrivals)
+                self.arrivals, *self.recording)
         if self.engine == "chain":
             return bool(run_chain(*head, cells.listing_count, cells.release_rate,
                                   self.available, self.clock, self.counters,

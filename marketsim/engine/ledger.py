@@ -7,6 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from marketsim.designs import BlockSchedule
 from marketsim.engine.cells import MarketCells
 
 
@@ -42,6 +43,14 @@ class Ledger:
         a heap of release times, any busy-time shape), ``"large-market"``
         (expectations of the large-market model) or ``"none"`` (counts built by
         hand, e.g. from platform logs; the default).
+    blocks : BlockSchedule or None
+        For a switchback design: its blocks (times from the start of the
+        window) and which were treated. The bins are then the blocks:
+        ``bin_edges`` are the block boundaries and ``bin_bookings`` and
+        ``bin_arrivals`` count each block's *kept* part only (after the
+        block's burn-in); ``bookings``, ``arrivals`` and ``mean_available``
+        cover the kept parts of all blocks, and ``window`` is their total
+        length. None for every other design.
     """
 
     cells: MarketCells
@@ -55,6 +64,7 @@ class Ledger:
     bin_bookings: np.ndarray
     bin_arrivals: np.ndarray
     engine: str = "none"
+    blocks: BlockSchedule | None = None
 
     @property
     def booking_rate(self) -> float:

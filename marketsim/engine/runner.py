@@ -9,10 +9,11 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from marketsim import _validation as check
-from marketsim.engine.cells import MarketCells
+from marketsim.designs import BlockSchedule, GlobalControl, Switchback
+from marketsim.engine.cells import MarketCells, build_cells
 from marketsim.engine.kernel_run import KernelRun
 from marketsim.engine.ledger import Ledger
-from marketsim.randomness import SeedLike, engine_streams
+from marketsim.randomness import SeedLike, engine_streams, schedule_stream, seed_sequence
 
 MAX_BIN_BYTES = 2**30
 """Largest memory the per-bin counts of one run may take."""
@@ -118,10 +119,38 @@ def run_cells(
             f"got {n_bins:,}"
         )
     end = burn_in + horizon
+    seed = seed_sequence(seed)  # one advance of a Generator, shared by every stream
+    design = cells.design
+    switchback = isinstance(design, Switchback)
+    if switchback:
+        if n_bins:
+            raise ValueError(f"bins must be None for a switchback design (its ledger's bins "
+                             f"are its blocks), got {n_bins}")
+        schedule = design.schedule(horizon, schedule_stream(seed))
+        n_bins = schedule.n_blocks
     run = KernelRun(cells, cells.starting_counts(start), burn_in=burn_in, end=end,
                     n_bins=n_bins, streams=engine_streams(seed), engine=engine)
     size, slices = min(slice_events, FIRST_SLICE_EVENTS), 0
     try:
+        if switchback:
+            block_time = np.zeros((n_bins, n_listing))
+            control = build_cells(cells.market, cells.treatment, GlobalControl())
+            pieces = [(0.0, 0.0, False, -1), *schedule.pieces()]  # the run's burn-in first
+            for start_time, end_time, treated, block in pieces:
+                recording = None if block < 0 else (
+                    block_time[block], run.bin_bookings[block:block + 1],
+                    run.bin_arrivals[block:block + 1])
+                run.enter_piece(burn_in + start_time, burn_in + end_time,
+                                cells if treated else control, recording)
+                while not run.step(size):
+                    slices += 1
+                    size = slice_events if slices >= 2 else size
+                    if on_slice is not None:
+                        on_slice(SliceProgress(time=run.time, end=end, events=run.events,
+                                               engine=run.engine))
+            kept = float(schedule.kept_lengths.sum())
+            return _ledger(run, cells, kept, n_bins, horizon, block_time.sum(axis=0) / kept,
+                           schedule)
         while not run.step(size):
             slices += 1
             size = slice_events if slices >= 2 else size
@@ -131,13 +160,14 @@ def run_cells(
     except KeyboardInterrupt:
         reached = min(run.time, end)
         partial = None
-        if reached > burn_in:
+        if reached > burn_in and not switchback:
             partial = _ledger(run, cells, reached - burn_in, n_bins, horizon,
                               np.full(n_listing, np.nan))
         raise SimulationInterrupted(
             f"simulation interrupted at time {reached:.6g} of {end:.6g} ({run.events:,} "
             "events); the error's .ledger holds the part of the window simulated"
-            + ("" if partial else " (None: the window had not started)"), partial) from None
+            + ("" if partial else " (None: the window had not started, or the run was a "
+               "switchback)"), partial) from None
     return _ledger(run, cells, horizon, n_bins, horizon, run.available_time / horizon)
 
 
@@ -153,7 +183,11 @@ class SimulationInterrupted(KeyboardInterrupt):
 
 
 def _ledger(run: KernelRun, cells: MarketCells, window: float, n_bins: int, horizon: float,
-            mean_available: np.ndarray) -> Ledger:
+            mean_available: np.ndarray, schedule: BlockSchedule | None = None) -> Ledger:
+    if schedule is not None:
+        edges = schedule.edges
+    else:
+        edges = np.linspace(0.0, horizon, n_bins + 1) if n_bins else np.empty(0)
     return Ledger(
         cells=cells,
         bookings=run.bookings,
@@ -162,10 +196,11 @@ def _ledger(run: KernelRun, cells: MarketCells, window: float, n_bins: int, hori
         mean_available=mean_available,
         final_available=run.available,
         events=run.events,
-        bin_edges=np.linspace(0.0, horizon, n_bins + 1) if n_bins else np.empty(0),
+        bin_edges=edges,
         bin_bookings=run.bin_bookings,
         bin_arrivals=run.bin_arrivals,
         engine=run.engine,
+        blocks=schedule,
     )
 
 

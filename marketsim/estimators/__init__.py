@@ -2,8 +2,9 @@
 
 May import: model, designs, engine (and the shared helpers).
 
-Every estimator here is a linear combination of the group rates ``Q_xy``: the
-metric per unit time produced by customers of treatment status ``x`` with
+Every estimator here but the switchback ones (:mod:`marketsim.estimators.switchback`,
+which read a switchback's ledger block by block) is a linear combination of the
+group rates ``Q_xy``: the metric per unit time produced by customers of treatment status ``x`` with
 listings of status ``y`` (1 = treated, 0 = control). A subclass only supplies
 the 2 x 2 matrix of coefficients (:meth:`Estimator.weights`) for the design's
 treated fractions ``a_C`` (customers) and ``a_L`` (listings); the base class
@@ -66,6 +67,11 @@ from marketsim.estimators.linear import (
     TwoSidedDebiased,
     TwoSidedNaive,
 )
+from marketsim.estimators.switchback import (
+    SwitchbackDifference,
+    SwitchbackHorvitzThompson,
+    block_totals,
+)
 from marketsim.estimators.totals import METRICS, Estimate, GroupTotals, group_rates, metric_rate
 
 __all__ = [
@@ -80,6 +86,9 @@ __all__ = [
     "TwoSidedNaive",
     "TwoSidedCorrected",
     "TwoSidedDebiased",
+    "SwitchbackDifference",
+    "SwitchbackHorvitzThompson",
+    "block_totals",
     "all_estimators",
     "default_estimators",
     "design_estimators",

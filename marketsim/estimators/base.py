@@ -6,7 +6,7 @@ from abc import ABC, abstractmethod
 
 import numpy as np
 
-from marketsim.designs import CellSplit
+from marketsim.designs import CellSplit, Design, Switchback
 from marketsim.engine.ledger import Ledger
 from marketsim.estimators.totals import Estimate, GroupTotals
 from marketsim.model.market import Market
@@ -63,6 +63,31 @@ class Estimator(ABC):
     @abstractmethod
     def weights(self, split: CellSplit, market: Market) -> np.ndarray:
         """Coefficients ``c[x, y]`` with ``estimate = sum(c * Q)``, shape (2, 2)."""
+
+    @property
+    def is_linear(self) -> bool:
+        """True when the estimate is the base class's combination of group rates
+        (coefficients from :meth:`weights`); False for an estimator that overrides
+        :meth:`estimate` (e.g. the switchback estimators)."""
+        return type(self).estimate is Estimator.estimate
+
+    def fits(self, design: Design, market: Market) -> None:
+        """Check that the estimator applies to ``design`` in ``market``.
+
+        Raises
+        ------
+        ValueError
+            Saying why not: by default the message of :meth:`weights` on the
+            design's split; a switchback design (whose ledger is by blocks, not
+            by randomized groups) fits only the switchback estimators.
+        """
+        if isinstance(design, Switchback):
+            raise ValueError(
+                f"{self.name} combines the rates of randomized customer and listing groups; "
+                f"a switchback design compares time blocks: use ms.SwitchbackDifference() "
+                f"or ms.SwitchbackHorvitzThompson(), got the design {design.label!r}"
+            )
+        self.weights(design.split(market), market)
 
     def fallback_weights(self, stratum: CellSplit, market: Market) -> np.ndarray:
         """Coefficients for a listing type where :meth:`weights` does not fit;

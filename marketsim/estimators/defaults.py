@@ -11,6 +11,7 @@ from marketsim.designs import (
     CustomerSide,
     Design,
     ListingSide,
+    Switchback,
     TwoSided,
     TwoSidedFollowingBalance,
 )
@@ -22,6 +23,7 @@ from marketsim.estimators.linear import (
     TwoSidedDebiased,
     TwoSidedNaive,
 )
+from marketsim.estimators.switchback import SwitchbackDifference, SwitchbackHorvitzThompson
 from marketsim.model.market import Market
 
 
@@ -51,6 +53,9 @@ OWN_ESTIMATORS: dict[type[Design], Callable[[], tuple[Estimator, ...]]] = {
     # scored only when asked for.
     TwoSided: lambda: two_sided_family(),
     TwoSidedFollowingBalance: lambda: two_sided_family(),
+    # Random assignment: both; alternating: the difference only (the Horvitz-Thompson
+    # estimator refuses it in its fit check).
+    Switchback: lambda: (SwitchbackDifference(), SwitchbackHorvitzThompson()),
 }
 """Each design's own estimators, by design class. The table lives here, with the
 estimators, so that designs never need to know about estimators; a new design
@@ -92,9 +97,13 @@ def default_estimators(design: Design, market: Market) -> tuple[Estimator, ...]:
     seen: list[np.ndarray] = []
     for estimator in design_estimators(design):
         try:
-            weights = np.where(present, estimator.stratum_weights(split, market), 0.0)
+            estimator.fits(design, market)
         except ValueError:
             continue
+        if not estimator.is_linear:
+            chosen.append(estimator)
+            continue
+        weights = np.where(present, estimator.stratum_weights(split, market), 0.0)
         if any(np.allclose(weights, other, rtol=1e-12, atol=0.0) for other in seen):
             continue
         chosen.append(estimator)

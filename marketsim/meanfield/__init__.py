@@ -46,11 +46,16 @@ Science 68(10), 2022: the large-market view of experiments in this model.
 
 from marketsim.meanfield.crossover import crossover_balances
 from marketsim.meanfield.expected import ESTIMATE_COLUMNS, expected_estimates, sweep_balance
+from marketsim.meanfield.periodic import PeriodicPath, periodic_path
 from marketsim.meanfield.steady import SteadyState, expected_ledger, gte, steady_state
+from marketsim.meanfield.switchback import switchback_ledger
 from marketsim.meanfield.trajectory import Trajectory, trajectory
 
 __all__ = [
     "SteadyState",
+    "PeriodicPath",
+    "periodic_path",
+    "switchback_ledger",
     "Trajectory",
     "steady_state",
     "expected_ledger",

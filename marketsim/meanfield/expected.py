@@ -12,10 +12,11 @@ import pandas as pd
 from numpy.typing import ArrayLike
 
 from marketsim import _validation as check
-from marketsim.designs import Design
+from marketsim.designs import Design, Switchback
 from marketsim.engine import build_cells
 from marketsim.estimators import METRICS, Estimator, default_estimators, design_estimators
-from marketsim.meanfield.steady import global_effect, require_treatment, solve_cells
+from marketsim.meanfield.steady import global_effect, long_run_ledger, require_treatment
+from marketsim.meanfield.switchback import switchback_ledger
 from marketsim.model import Market, Treatment
 
 DesignLike = Union[Design, Callable[[float], Design]]
@@ -48,6 +49,14 @@ def expected_estimates(
         relative_bias``; ``truth`` is the large-market global treatment effect
         (:func:`gte`), ``bias = expected_estimate - truth`` and
         ``relative_bias = bias / truth`` (NaN when the truth is exactly 0).
+
+    Notes
+    -----
+    With a demand profile, the expected ledger and the truth are averages over
+    whole periods of the periodic path (:func:`marketsim.meanfield.periodic_path`).
+    A :class:`~marketsim.Switchback` is run through its schedule in the long run
+    (:func:`marketsim.meanfield.switchback.switchback_ledger`): its bias is the
+    carry-over across switches that the blocks' burn-in did not remove.
 
     Raises
     ------
@@ -220,7 +229,8 @@ def _estimate_rows(market: Market, treatment: Treatment, design: Design, label: 
                    estimators: list[Estimator] | None, metric: str, truth: float,
                    *, strict: bool, balance: float | None = None) -> list[dict]:
     cells = build_cells(market, treatment, design)
-    ledger = solve_cells(cells).ledger()
+    ledger = (switchback_ledger(cells) if isinstance(design, Switchback)
+              else long_run_ledger(cells))
     split = cells.split
     if estimators is None:
         estimators = list(default_estimators(design, market))
@@ -228,7 +238,7 @@ def _estimate_rows(market: Market, treatment: Treatment, design: Design, label: 
             reasons = []
             for estimator in design_estimators(design):
                 try:
-                    estimator.weights(split, market)
+                    estimator.fits(design, market)
                 except ValueError as error:
                     reasons.append(str(error))
             raise ValueError(
@@ -239,6 +249,7 @@ def _estimate_rows(market: Market, treatment: Treatment, design: Design, label: 
     rows = []
     for estimator in estimators:
         try:
+            estimator.fits(design, market)
             value = estimator.estimate(ledger, metric).value
         except ValueError:
             if strict:

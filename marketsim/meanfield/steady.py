@@ -12,6 +12,7 @@ from marketsim import _validation as check
 from marketsim.designs import Design, GlobalControl, GlobalTreatment
 from marketsim.engine import Ledger, MarketCells, build_cells
 from marketsim.estimators import METRICS, metric_rate
+from marketsim.meanfield.periodic import periodic_of_cells
 from marketsim.meanfield.solver import (
     METHODS,
     FlowModel,
@@ -267,7 +268,9 @@ def steady_state(
 
 def gte(market: Market, treatment: Treatment, metric: str = "bookings") -> float:
     """Large-market global treatment effect: the metric under global treatment minus
-    under global control, in steady state.
+    under global control, in steady state; with a demand profile, the metric
+    averaged over whole periods of the periodic path (the daily or weekly effect,
+    what a simulation whose window covers whole periods measures).
 
     Parameters
     ----------
@@ -293,10 +296,22 @@ def gte(market: Market, treatment: Treatment, metric: str = "bookings") -> float
     return global_effect(market, treatment, metric)
 
 
+def long_run_ledger(cells: MarketCells) -> Ledger:
+    """The expected ledger of the long run: the steady state with flat demand; with a
+    demand profile, one whole period of the periodic path
+    (:func:`marketsim.meanfield.periodic_path`)."""
+    profile = cells.market.demand
+    if profile is None or profile.is_flat:
+        return solve_cells(cells).ledger()
+    return periodic_of_cells(cells).ledger()
+
+
 def global_effect(market: Market, treatment: Treatment, metric: str) -> float:
-    treated = solve_cells(build_cells(market, treatment, GlobalTreatment()))
-    control = solve_cells(build_cells(market, treatment, GlobalControl()))
-    return metric_rate(treated.ledger(), metric) - metric_rate(control.ledger(), metric)
+    """The long-run global treatment effect (averaged over whole periods under a
+    demand profile)."""
+    treated = long_run_ledger(build_cells(market, treatment, GlobalTreatment()))
+    control = long_run_ledger(build_cells(market, treatment, GlobalControl()))
+    return metric_rate(treated, metric) - metric_rate(control, metric)
 
 
 
@@ -309,4 +324,5 @@ def require_treatment(treatment: object) -> None:
 
 
 __all__ = ["SteadyState", "steady_state", "expected_ledger", "gte", "global_effect",
+           "long_run_ledger",
            "solve_cells", "require_treatment"]

@@ -5,6 +5,7 @@ and minimum effect:
 
 - ``designs``: the candidate designs to compare, a list of objects such as
   ``{"design": "customer-side", "treated": 0.5}``,
+  ``{"design": "switchback", "block_length": 12, "burn_in": 3, "assignment": "random"}``,
   ``{"design": "listing-side", "treated": 0.25}``,
   ``{"design": "two-sided", "customers": 0.5, "listings": 0.5}`` or
   ``{"design": "two-sided-following-balance"}`` (default: the standard grid of
@@ -28,8 +29,14 @@ DESIGN_KINDS = {
     "listing-side": ("treated",),
     "two-sided": ("customers", "listings"),
     "two-sided-following-balance": ("customers", "listings"),
+    "switchback": ("block_length", "burn_in", "assignment"),
 }
-"""Design names of a scenario file and the keys each takes (all optional: default 0.5)."""
+"""Design names of a scenario file and the keys each takes (all optional: fractions
+default to 0.5; a switchback needs ``block_length``, its ``burn_in`` defaults to 0 and
+its ``assignment`` to ``"random"``)."""
+
+SWITCHBACK_ASSIGNMENTS = ("random", "alternating")
+"""The ``assignment`` values of a switchback spec (those of ``marketsim.Switchback``)."""
 
 TARGETS = ("minimum_effect", "relative_minimum_effect", "target_se", "target_relative_se",
            "target_rmse")
@@ -68,7 +75,10 @@ KEY_HELP = {
                                  "(80% power, 5% level, with the reported standard error)",
     "experiment.designs": "optional candidate designs, e.g. [{\"design\": \"customer-side\", "
                           "\"treated\": 0.5}, {\"design\": \"two-sided\", \"customers\": 0.5, "
-                          "\"listings\": 0.5}, {\"design\": \"two-sided-following-balance\"}]; "
+                          "\"listings\": 0.5}, {\"design\": \"two-sided-following-balance\"}, "
+                          "{\"design\": \"switchback\", \"block_length\": 12, \"burn_in\": 3, "
+                          "\"assignment\": \"random\"}]; a switchback's burn_in is dropped at "
+                          "the start of every block and must be shorter than block_length; "
                           f"design names: {', '.join(DESIGN_KINDS)}",
     "experiment.target": "optional target of the horizon plan instead of minimum_effect, one "
                          f"of {', '.join(TARGETS)} (e.g. {{\"target_relative_se\": 0.02}})",
@@ -102,10 +112,30 @@ def check_designs(specs: object) -> tuple[dict, ...]:
         if unknown:
             raise ValueError(f"{name} has an unknown key {unknown[0]!r}; a {kind} design takes "
                              f"{', '.join(allowed)}")
-        values = {key: check.number(f"{name}.{key}", spec.get(key, 0.5), low=0.0, high=1.0,
-                                    low_open=True, high_open=True) for key in allowed}
+        if kind == "switchback":
+            values = _switchback_spec(name, spec)
+        else:
+            values = {key: check.number(f"{name}.{key}", spec.get(key, 0.5), low=0.0,
+                                        high=1.0, low_open=True, high_open=True)
+                      for key in allowed}
         checked.append({"design": kind, **values})
     return tuple(checked)
+
+
+def _switchback_spec(name: str, spec: dict) -> dict:
+    """The keys of a switchback spec, checked (the design repeats the checks)."""
+    if "block_length" not in spec:
+        raise ValueError(f"{name} (a switchback) needs block_length, the length of each "
+                         f"block in time units, got {spec!r}")
+    length = check.number(f"{name}.block_length", spec["block_length"], low=0.0,
+                          low_open=True)
+    burn_in = check.number(f"{name}.burn_in", spec.get("burn_in", 0.0), low=0.0)
+    if burn_in >= length:
+        raise ValueError(f"{name}.burn_in must be shorter than block_length, got burn_in="
+                         f"{burn_in:g} with block_length={length:g}")
+    assignment = check.choice(f"{name}.assignment", spec.get("assignment", "random"),
+                              SWITCHBACK_ASSIGNMENTS)
+    return {"block_length": length, "burn_in": burn_in, "assignment": assignment}
 
 
 def check_target(target: object) -> tuple[str, float]:

@@ -10,10 +10,12 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from marketsim import _validation as check
 from marketsim.designs import (
     CustomerSide,
     Design,
     ListingSide,
+    Switchback,
     TwoSided,
     TwoSidedFollowingBalance,
 )
@@ -95,12 +97,38 @@ class DesignChoice:
         return self.report()
 
 
-def default_candidates() -> list[Arm]:
-    """A grid of designs and treated fractions to compare (the default of :func:`choose_design`)."""
+SWITCHBACK_BLOCKS = (2.0, 5.0, 10.0)
+"""Block lengths of the candidate switchbacks, in mean busy times of the market."""
+
+SWITCHBACK_MIN_BLOCKS = 6
+"""A candidate switchback needs at least this many blocks in the horizon (fewer leave
+too few blocks for a standard error from their variation)."""
+
+
+def switchback_candidates(market: Market, horizon: float) -> list[Arm]:
+    """Random switchbacks with blocks of 2, 5 and 10 mean busy times (the market's
+    listing-weighted mean), each dropping one mean busy time at the start of every
+    block; only those with at least :data:`SWITCHBACK_MIN_BLOCKS` blocks in ``horizon``."""
+    horizon = check.number("horizon", horizon, low=0.0, low_open=True)
+    busy = float(market.listing_counts @ market.mean_busy_time / market.n_listings)
+    return [Arm(Switchback(k * busy, burn_in=busy)) for k in SWITCHBACK_BLOCKS
+            if horizon >= SWITCHBACK_MIN_BLOCKS * k * busy]
+
+
+def default_candidates(market: Market | None = None,
+                       horizon: float | None = None) -> list[Arm]:
+    """A grid of designs and treated fractions to compare (the default of :func:`choose_design`).
+
+    Customer-side and listing-side at 25%, 50% and 75% treated, two-sided 50/50 and
+    two-sided following balance; given the market and the horizon, also the
+    switchbacks of :func:`switchback_candidates`.
+    """
     arms = [Arm(CustomerSide(a)) for a in (0.25, 0.5, 0.75)]
     arms += [Arm(ListingSide(a)) for a in (0.25, 0.5, 0.75)]
     arms.append(Arm(TwoSided(0.5, 0.5)))
     arms.append(Arm(TwoSidedFollowingBalance()))
+    if market is not None and horizon is not None:
+        arms += switchback_candidates(market, horizon)
     return arms
 
 
@@ -134,8 +162,11 @@ def choose_design(
     burn_in : float
         Warm-up simulated before the window and not measured.
     candidates : sequence of Arm or Design, optional
-        Default :func:`default_candidates`: customer-side and listing-side at
-        25%, 50% and 75% treated, two-sided 50/50 and two-sided following balance.
+        Default :func:`default_candidates` of the market and horizon: customer-side
+        and listing-side at 25%, 50% and 75% treated, two-sided 50/50, two-sided
+        following balance, and random switchbacks with blocks of 2, 5 and 10 mean
+        busy times (burn-in one mean busy time) that fit at least 6 times in the
+        horizon.
     metric : {"bookings", "revenue", "conversion"}
     replications, seed, workers, progress, backend, client, store, max_seconds, max_events
         As for :meth:`Study.run` (the store holds the study of the candidates).
@@ -158,7 +189,8 @@ def choose_design(
     """
     require_market_and_treatment(market, treatment)
     arms = [a if isinstance(a, Arm) else Arm(a) for a in
-            (default_candidates() if candidates is None else list(candidates))]
+            (default_candidates(market, horizon) if candidates is None
+             else list(candidates))]
     study = Study(market, treatment, arms, horizon=horizon, burn_in=burn_in, metric=metric)
     result = study.run(replications, seed=seed, workers=workers, progress=progress,
                        backend=backend, client=client, store=store, max_seconds=max_seconds,
@@ -318,6 +350,8 @@ def paired_rmse_errors(influence: np.ndarray, best: int) -> np.ndarray:
     return np.std(difference, axis=0, ddof=1) / math.sqrt(influence.shape[0])
 
 
-__all__ = ["TIE_RULE", "DesignChoice", "choose_design", "default_candidates", "rank_candidates",
+__all__ = ["TIE_RULE", "DesignChoice", "choose_design", "default_candidates",
+           "switchback_candidates", "SWITCHBACK_BLOCKS", "SWITCHBACK_MIN_BLOCKS",
+           "rank_candidates",
            "choice_from_result", "tied_with_best", "preference_order", "rmse_influence_columns",
            "paired_rmse_errors"]

@@ -23,7 +23,7 @@ import numpy as np
 import pandas as pd
 
 from marketsim import _validation as check
-from marketsim.designs import Design
+from marketsim.designs import Design, Switchback
 from marketsim.meanfield import gte, steady_state
 from marketsim.model import Market, Treatment
 from marketsim.planning.choice import (
@@ -140,7 +140,11 @@ def choose_design_robustly(
         The central market, simulated exactly (default ``markets[0]``); pass
         ``calibration.market``.
     candidates : sequence of Arm or Design, optional
-        Default :func:`~marketsim.planning.choice.default_candidates`.
+        Default :func:`~marketsim.planning.choice.default_candidates` (without
+        switchbacks). Switchbacks are refused: the screen scales the central
+        simulation's noise by Poisson counts, which does not describe the
+        block-to-block noise of a switchback (compare them with
+        :func:`~marketsim.choose_design` on the calibrated market).
     metric : {"bookings", "revenue", "conversion"}
     replications, seed, workers
         As for :meth:`Study.run` (the study at the central market).
@@ -170,6 +174,15 @@ def choose_design_robustly(
     horizon, burn_in = check.window(horizon, burn_in)
     arms = [a if isinstance(a, Arm) else Arm(a) for a in
             (default_candidates() if candidates is None else candidates)]
+    for arm in arms:
+        if isinstance(arm.design, Switchback):
+            raise ValueError(
+                f"candidates must not include a switchback here, got {arm.label!r}: the "
+                "screen over plausible markets scales the central simulation's noise by "
+                "Poisson counts, which does not describe the block-to-block noise of a "
+                "switchback; compare switchbacks with ms.choose_design on the calibrated "
+                "market"
+            )
     result = Study(center, treatment, arms, horizon=horizon, burn_in=burn_in,
                    metric=metric).run(replications, seed=seed, workers=workers,
                                       progress=False)

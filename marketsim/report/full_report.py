@@ -15,7 +15,13 @@ import numpy as np
 import pandas as pd
 
 from marketsim import meanfield
-from marketsim.designs import CustomerSide, ListingSide, TwoSided, TwoSidedFollowingBalance
+from marketsim.designs import (
+    CustomerSide,
+    ListingSide,
+    Switchback,
+    TwoSided,
+    TwoSidedFollowingBalance,
+)
 from marketsim.meanfield.figures import plot_balance_sweep
 from marketsim.model import Market, Treatment
 from marketsim.model.scenario_file import Scenario
@@ -43,8 +49,10 @@ estimators); the design choice compares them with the other candidates."""
 def candidate_arms(scenario: Scenario) -> list[Arm]:
     """The scenario's candidate designs (its ``designs`` specs, or the standard grid)."""
     if scenario.designs is None:
-        return default_candidates()
+        return default_candidates(scenario.market, scenario.horizon)
     build = {"customer-side": lambda s: CustomerSide(s["treated"]),
+             "switchback": lambda s: Switchback(s["block_length"], burn_in=s["burn_in"],
+                                                assignment=s["assignment"]),
              "listing-side": lambda s: ListingSide(s["treated"]),
              "two-sided": lambda s: TwoSided(s["customers"], s["listings"]),
              "two-sided-following-balance":

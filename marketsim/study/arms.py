@@ -104,10 +104,9 @@ class Arm:
                     "design"
                 )
             return chosen
-        split = self.design.split(market)
         for estimator in self.estimators:
             try:
-                estimator.weights(split, market)
+                estimator.fits(self.design, market)
             except ValueError as error:
                 note = listing_rounding_note(self.design, market)
                 raise ValueError(

@@ -12,7 +12,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from marketsim import _validation as check
-from marketsim.designs import Design, listing_rounding_note
+from marketsim.designs import Design, GlobalControl, Switchback, listing_rounding_note
 from marketsim.engine import START_OPTIONS, Ledger, MarketCells, build_cells, run_cells
 from marketsim.engine.logs import PlatformLog, run_logged_cells
 from marketsim.meanfield import steady_state
@@ -46,6 +46,14 @@ def simulate(
     exact event by event. A demand profile (``Market(demand=...)``) is followed
     exactly by both; time 0 is the start of its period. ``Ledger.engine`` says
     which engine ran.
+
+    A :class:`~marketsim.Switchback` design runs its schedule piece by piece
+    (each piece exact): the burn-in in the market without the feature, then the
+    window's blocks, switching the choice weights at every block boundary while
+    the market's state (available listings, release times) carries over. Its
+    random assignment comes from a stream of ``seed`` of its own, so the
+    customers' arrivals are those of the global worlds with the same seed. The
+    ledger then counts each block's kept part (``Ledger.blocks``).
 
     Parameters
     ----------
@@ -168,6 +176,9 @@ def simulate_log(
     >>> list(log.sessions.columns)
     ['session_id', 'time', 'customer_type', 'booked_listing', 'treated']
     """
+    if isinstance(design, Switchback):
+        raise ValueError("design must not be a switchback for simulate_log (the logging "
+                         f"engine does not switch the treatment over time), got {design.label!r}")
     cells = build_cells(market, treatment, design)
     return run_logged_cells(cells, horizon=horizon, burn_in=burn_in, seed=seed,
                             start=starting_availability(cells, start))
@@ -177,11 +188,14 @@ def starting_availability(cells: MarketCells, start: str | ArrayLike) -> np.ndar
     """Available listings per listing cell at time 0, as a fresh int64 array.
 
     ``"steady"`` is the large-market steady state of the cells rounded to whole
-    listings; ``"empty"`` and explicit counts are checked by the engine
+    listings (for a switchback, that of global control, the market its run's
+    burn-in simulates); ``"empty"`` and explicit counts are checked by the engine
     (:meth:`~marketsim.engine.MarketCells.starting_counts`).
     """
     if isinstance(start, str) and check.choice("start", start, START_OPTIONS) == "steady":
-        state = steady_state(cells.market, cells.treatment, cells.design)
+        # a switchback's run starts (burn-in included) in the market without the feature
+        design = GlobalControl() if isinstance(cells.design, Switchback) else cells.design
+        state = steady_state(cells.market, cells.treatment, design)
         rounded = np.rint(state.available).astype(np.int64)
         return np.clip(rounded, 0, cells.listing_count)
     return cells.starting_counts(start)

@@ -10,7 +10,7 @@ import numpy as np
 import pandas as pd
 
 from marketsim import _validation as check
-from marketsim.designs import Design, GlobalControl, GlobalTreatment
+from marketsim.designs import Design, GlobalControl, GlobalTreatment, Switchback
 from marketsim.engine import START_OPTIONS, MarketCells, build_cells
 from marketsim.estimators import METRICS, Estimator
 from marketsim.estimators.batches import check_batches
@@ -107,6 +107,9 @@ class Study:
         self.burn_in = check.number("burn_in", burn_in, low=0.0)
         self.metrics = _metrics(metric, market)
         self.arms = arm_list(arms)
+        for arm in self.arms:
+            if isinstance(arm.design, Switchback):
+                arm.design.check_horizon(self.horizon)
         self.start = check.choice("start", start, START_OPTIONS)
         self.batches = check_batches(batches, market, self.horizon)
         self.estimators = tuple(arm.resolve(market) for arm in self.arms)
@@ -123,7 +126,7 @@ class Study:
         weights = tuple(
             tuple(
                 estimator.stratum_weights(cells.split, self.market)
-                if type(estimator).estimate is Estimator.estimate else None
+                if estimator.is_linear else None
                 for estimator in estimators
             )
             for (cells, _), estimators in zip(arm_worlds, self.estimators)
