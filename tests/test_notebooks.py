@@ -25,6 +25,7 @@ EXPECTED = {
     "02_sweep_balance.ipynb",
     "03_size_an_experiment.ipynb",
     "04_calibrate_from_logs.ipynb",
+    "05_switchbacks_and_daily_demand.ipynb",
 }
 KERNEL_NAME = "marketsim-notebook-test"
 CELL_TIMEOUT = 300  # seconds per cell

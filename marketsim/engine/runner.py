@@ -73,11 +73,21 @@ def run_cells(
     busy listing's release time (``Ledger.engine`` says which). Both are exact
     event by event and follow the market's demand profile exactly.
 
+    Cells of a :class:`~marketsim.Switchback` run its schedule piece by piece:
+    the burn-in with the choice weights of the market without the feature, then
+    each block's burn-in and kept part with those of its arm. The kernels'
+    state (available counts, the pending arrival, the heap of release times)
+    carries over unchanged, so each piece is exact and a switch draws nothing:
+    with weights that do not change, the general engine makes exactly the
+    bookings of an unbroken run. The schedule's random assignment is drawn from
+    its own stream of ``seed`` (:func:`marketsim.randomness.schedule_stream`).
+
     Parameters
     ----------
     cells : MarketCells
     horizon, burn_in, seed, bins
-        As in :func:`marketsim.simulate`.
+        As in :func:`marketsim.simulate` (``bins`` must be None for a switchback,
+        whose ledger's bins are its blocks).
     start : "empty" or array_like of int, shape (n_listing_cells,)
         ``"empty"`` (every listing available) or the available listings per
         listing cell; the large-market warm start ``"steady"`` is resolved above

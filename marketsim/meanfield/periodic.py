@@ -36,8 +36,8 @@ MAX_PERIODS = 10_000
 """Most periods followed to reach the periodic path."""
 
 
-def integrate_piece(model: FlowModel, s0: np.ndarray, duration: float, multiplier: float
-                    ) -> tuple[np.ndarray, np.ndarray]:
+def integrate_piece(model: FlowModel, s0: np.ndarray, duration: float, multiplier: float,
+                    count_from: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
     """Follow the flow for ``duration`` with arrivals scaled by ``multiplier``.
 
     Parameters
@@ -49,13 +49,15 @@ def integrate_piece(model: FlowModel, s0: np.ndarray, duration: float, multiplie
         > 0.
     multiplier : float
         Arrival-rate multiplier of the piece, >= 0.
+    count_from : float
+        Count the bookings from this time of the piece on (0: all of them).
 
     Returns
     -------
     s1 : ndarray, shape (n_listing_cells,)
         Available share at the end.
     bookings : ndarray, shape (n_customer_cells, n_listing_cells)
-        Bookings in the piece, in listing units (whole market).
+        Bookings from ``count_from`` to the end, in listing units (whole market).
     """
     from scipy.integrate import solve_ivp
 
@@ -87,34 +89,47 @@ def integrate_piece(model: FlowModel, s0: np.ndarray, duration: float, multiplie
         warnings.simplefilter("ignore")
         with np.errstate(all="ignore"):
             sol = solve_ivp(rhs, (0.0, duration), y0, method="LSODA", jac=jacobian,
+                            t_eval=[min(max(count_from, 0.0), duration), duration],
                             rtol=1e-9, atol=1e-13 * max(float(model.rho.max()), 1e-300))
     if not sol.success or not np.all(np.isfinite(sol.y[:, -1])):
         raise RuntimeError(f"the large-market ODE solver failed ({sol.message}); please "
                            "report this market")
     end = sol.y[:, -1]
+    made = end[n_l:] - sol.y[n_l:, 0]
     return (np.clip(end[:n_l], 0.0, model.rho),
-            np.maximum(end[n_l:], 0.0).reshape(n_c, n_l) * model.n)
+            np.maximum(made, 0.0).reshape(n_c, n_l) * model.n)
 
 
 def flow_through(model: FlowModel, s0: np.ndarray, start: float, end: float,
-                 profile: DemandProfile | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                 profile: DemandProfile | None, count_from: float | None = None
+                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Follow the flow from time ``start`` to ``end`` under ``profile`` (pieces cut at
     its breakpoints; time 0 is the start of a period).
+
+    Parameters
+    ----------
+    model : FlowModel
+    s0 : ndarray, shape (n_listing_cells,)
+    start, end : float
+    profile : DemandProfile or None
+    count_from : float, optional
+        Count bookings and arrivals from this time on (default ``start``).
 
     Returns
     -------
     s1 : ndarray, shape (n_listing_cells,)
     bookings : ndarray, shape (n_customer_cells, n_listing_cells)
-        Bookings over ``[start, end)`` in listing units.
+        Bookings over ``[count_from, end)`` in listing units.
     arrivals : ndarray, shape (n_customer_cells,)
-        Expected arrivals over ``[start, end)``.
+        Expected arrivals over ``[count_from, end)``.
     """
+    counted = start if count_from is None else max(start, min(count_from, end))
     bookings = np.zeros(model.a.shape)
     s = np.asarray(s0, dtype=float)
     if profile is None or profile.is_flat:
         if end > start:
-            s, bookings = integrate_piece(model, s, end - start, 1.0)
-        return s, bookings, model.lam * model.n * max(end - start, 0.0)
+            s, bookings = integrate_piece(model, s, end - start, 1.0, counted - start)
+        return s, bookings, model.lam * model.n * max(end - counted, 0.0)
     t = start
     while end - t > 1e-12 * max(1.0, abs(end)):
         cycle = math.floor(t / profile.period + 1e-12)
@@ -122,10 +137,11 @@ def flow_through(model: FlowModel, s0: np.ndarray, start: float, end: float,
         piece = max(0, int(np.searchsorted(profile.starts, phase + 1e-12, side="right")) - 1)
         stop = min(end, cycle * profile.period + profile.ends[piece])
         if stop - t > 0.0:
-            s, made = integrate_piece(model, s, stop - t, float(profile.multipliers[piece]))
+            s, made = integrate_piece(model, s, stop - t, float(profile.multipliers[piece]),
+                                      counted - t)
             bookings += made
         t = stop
-    arrivals = model.lam * model.n * (profile.cumulative(end) - profile.cumulative(start))
+    arrivals = model.lam * model.n * (profile.cumulative(end) - profile.cumulative(counted))
     return s, bookings, arrivals
 
 

@@ -119,7 +119,14 @@ def agreement_text(scenario_choice: DesignChoice, robust: RobustDesignChoice) ->
                 f"the calibrated plausible markets) recommend {mine}.")
     at_center = robust.confirmation[(robust.confirmation.arm == first["arm"])
                                     & (robust.confirmation.estimator == first["estimator"])]
-    tied = bool(len(at_center) and at_center.tied.iloc[0])
+    if not len(at_center):
+        return (f"Section 3 recommends {mine} on the scenario's market; the choice over the "
+                f"calibrated plausible markets, {second['arm']} with the "
+                f"{second['estimator']} estimator, did not consider it: the screen over "
+                "plausible markets leaves switchbacks out (their block-to-block noise is "
+                "not the Poisson noise it scales), so compare the two on the calibrated "
+                "market with choose_design.")
+    tied = bool(at_center.tied.iloc[0])
     return (
         f"Section 3 recommends {mine} on the scenario's market; over the calibrated "
         f"plausible markets the choice is {second['arm']} with the {second['estimator']} "
