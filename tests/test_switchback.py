@@ -10,7 +10,9 @@ ODE (Kurtz, J. Appl. Prob. 1970).
 
 from __future__ import annotations
 
+import itertools
 import math
+import re
 
 import numpy as np
 import pytest
@@ -51,7 +53,7 @@ def large_market_bias(market, design):
      "assignment must be one of 'random', 'alternating', got 'daily'"),
 ])
 def test_bad_switchbacks_are_refused_with_the_rule_and_the_value(kwargs, message):
-    with pytest.raises(ValueError, match=__import__("re").escape(message)):
+    with pytest.raises(ValueError, match=re.escape(message)):
         ms.Switchback(**kwargs)
 
 
@@ -65,11 +67,11 @@ def test_a_horizon_shorter_than_two_blocks_is_refused_everywhere():
 
 
 def test_linear_estimators_refuse_a_switchback_and_switchback_ones_refuse_the_rest():
-    with pytest.raises(ValueError, match="customer-side .* a switchback design compares time"):
+    with pytest.raises(ValueError, match=r"customer-side .* a switchback design compares time"):
         ms.Arm(ms.Switchback(5.0), [ms.CustomerSideEstimator()]).resolve(MARKET)
     with pytest.raises(ValueError, match="switchback difference needs a switchback design"):
         ms.Arm(ms.CustomerSide(0.5), [ms.SwitchbackDifference()]).resolve(MARKET)
-    with pytest.raises(ValueError, match="assignment='random'.*got assignment='alternating'"):
+    with pytest.raises(ValueError, match=r"assignment='random'.*got assignment='alternating'"):
         ms.Arm(ms.Switchback(5.0, assignment="alternating"),
                [ms.SwitchbackHorvitzThompson()]).resolve(MARKET)
     assert [e.name for e in ms.Arm(ms.Switchback(5.0)).resolve(MARKET)] == [
@@ -99,7 +101,7 @@ def test_kept_windows_partition_into_treated_and_control(length, share, blocks, 
                       horizon - burn.sum(), rtol=1e-12, atol=1e-9)
     pieces = schedule.pieces()
     assert pieces[0][0] == 0.0 and np.isclose(pieces[-1][1], horizon)
-    assert all(np.isclose(a[1], b[0]) for a, b in zip(pieces, pieces[1:]))
+    assert all(np.isclose(a[1], b[0]) for a, b in itertools.pairwise(pieces))
     positive = kept > 0
     assert schedule.treated[positive].any() and not schedule.treated[positive].all()
 
