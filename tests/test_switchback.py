@@ -275,3 +275,30 @@ def test_global_effect_under_a_profile_is_the_period_average():
         treated.mean_booking_rates.sum() - control.mean_booking_rates.sum(), rel=1e-8)
     with pytest.raises(ValueError, match="market must have a demand profile"):
         ms.meanfield.periodic_path(MARKET)
+
+
+# --- design choice, scenario files -------------------------------------------------------
+
+def test_default_candidates_add_switchbacks_that_fit_the_horizon_and_files_name_them():
+    """Blocks of 2, 5 and 10 mean busy times (2.25 hours here), each at least 8 times in
+    the horizon; a scenario file's switchback spec becomes the design."""
+    from marketsim.model.scenario_file import scenario_from_dict
+    from marketsim.model.scenarios import rehearsal_rooms_scenario
+    from marketsim.planning import default_candidates
+    from marketsim.report.full_report import candidate_arms
+
+    labels = [a.label for a in default_candidates(MARKET, 100.0)
+              if isinstance(a.design, ms.Switchback)]
+    assert labels == ["switchback (block 4.5, burn-in 2.25, random)",
+                      "switchback (block 11.25, burn-in 2.25, random)"]
+    assert not any(isinstance(a.design, ms.Switchback) for a in default_candidates())
+    data = rehearsal_rooms_scenario().to_dict()
+    data["experiment"]["designs"] = [{"design": "switchback", "block_length": 12,
+                                      "assignment": "alternating"}]
+    scenario = scenario_from_dict(data)
+    assert [a.design for a in candidate_arms(scenario)] == [
+        ms.Switchback(12.0, burn_in=0.0, assignment="alternating")]
+    assert scenario_from_dict(scenario.to_dict()).designs == scenario.designs
+    with pytest.raises(ValueError, match="candidates must not include a switchback here"):
+        ms.choose_design_robustly([MARKET, MARKET], TREATMENT, horizon=50.0,
+                                  candidates=[ms.Switchback(5.0)], replications=2)

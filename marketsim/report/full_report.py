@@ -247,14 +247,17 @@ def plan_section(report: Report, scenario: Scenario, result: StudyResult, arms: 
                   "RMSE at the planned horizon, split into bias and noise")
     report.text(choice.report().replace("\n", "\n\n"))
     kind, value = scenario.target or ("minimum_effect", scenario.minimum_effect)
-    plan = plan_horizon(market, treatment, choice, pilot_horizon=scenario.horizon / 4,
+    pilot = scenario.horizon / 4
+    if isinstance(choice.design, Switchback):  # a pilot must hold two of its blocks
+        pilot = max(pilot, 2.0 * choice.design.block_length)
+    plan = plan_horizon(market, treatment, choice, pilot_horizon=pilot,
                         burn_in=scenario.burn_in, replications=replications, seed=seed,
                         workers=workers, progress=True, time_unit=unit, **{kind: value})
     report.text(
         f"How long must **{best['arm']}** with the {best['estimator']} estimator run? "
         f"Target: {plan.target}. The horizon is the measured window "
-        f"after the burn-in. The plan runs its own pilots at {scenario.horizon / 4:g} and "
-        f"{scenario.horizon:g} {unit}s, so its true effect "
+        f"after the burn-in. The plan runs its own pilots at {pilot:g} and "
+        f"{4 * pilot:g} {unit}s, so its true effect "
         f"({plan.table['truth'].iloc[0]:.3g}) is another Monte Carlo estimate of the effect "
         "of section 1 and differs from it by Monte Carlo error."
     )
