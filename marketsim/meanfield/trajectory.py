@@ -44,6 +44,12 @@ def trajectory(
     -------
     Trajectory
 
+    Notes
+    -----
+    The path follows the market's mean arrival rate; under a demand profile use
+    :func:`marketsim.meanfield.periodic_path`, which follows the profile piece by
+    piece to its periodic path.
+
     Examples
     --------
     >>> import marketsim as ms
