@@ -89,7 +89,9 @@ class SwitchbackDifference(_SwitchbackEstimator):
     Carry-over across switches makes neighbouring blocks dependent and biases
     the estimate; the burn-in of each block is what limits it.
 
-    Fits any switchback design (random or alternating assignment).
+    Fits any switchback design (random or alternating assignment). The blocks
+    play the part of batches here, so there is no separate batch-means standard
+    error (``batch_se`` is NaN).
 
     References
     ----------

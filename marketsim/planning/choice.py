@@ -19,6 +19,7 @@ from marketsim.designs import (
     TwoSided,
     TwoSidedFollowingBalance,
 )
+from marketsim.estimators.batches import mean_busy_time
 from marketsim.model import Market, Treatment
 from marketsim.planning.sweep import require_market_and_treatment
 from marketsim.randomness import SeedLike
@@ -111,7 +112,7 @@ def switchback_candidates(market: Market, horizon: float) -> list[Arm]:
     listing-weighted mean), each dropping one mean busy time at the start of every
     block; only those with at least :data:`SWITCHBACK_MIN_BLOCKS` blocks in ``horizon``."""
     horizon = check.number("horizon", horizon, low=0.0, low_open=True)
-    busy = float(market.listing_counts @ market.mean_busy_time / market.n_listings)
+    busy = mean_busy_time(market)
     return [Arm(Switchback(k * busy, burn_in=busy)) for k in SWITCHBACK_BLOCKS
             if horizon >= SWITCHBACK_MIN_BLOCKS * k * busy]
 

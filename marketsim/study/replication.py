@@ -11,6 +11,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from marketsim.designs import Switchback
 from marketsim.engine import MarketCells, run_cells
 from marketsim.estimators import Estimator, GroupTotals, metric_rate
 
@@ -71,7 +72,10 @@ def replicate(plan: Plan, root: tuple, index: int) -> Outcome:
     events = control.events + treated.events
     row = 0
     for a, cells in enumerate(plan.arm_cells):
-        ledger = run_cells(cells, start=plan.arm_starts[a], bins=plan.batches, **runs)
+        # a switchback's ledger is by blocks (its standard error is block-to-block);
+        # every other arm gets the batches of the batch-means standard error
+        bins = None if isinstance(cells.design, Switchback) else plan.batches
+        ledger = run_cells(cells, start=plan.arm_starts[a], bins=bins, **runs)
         events += ledger.events
         groups = [GroupTotals.of(ledger, metric) for metric in plan.metrics]
         splits = [g.analysis_split(cells.split) for g in groups]

@@ -12,7 +12,7 @@ import pandas as pd
 from marketsim import _validation as check
 from marketsim.designs import Design, GlobalControl, GlobalTreatment, Switchback
 from marketsim.engine import START_OPTIONS, MarketCells, build_cells
-from marketsim.estimators import METRICS, Estimator
+from marketsim.estimators import METRICS
 from marketsim.estimators.batches import check_batches
 from marketsim.model import Market, Treatment
 from marketsim.randomness import SeedLike
