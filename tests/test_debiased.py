@@ -151,7 +151,9 @@ def test_between_the_limits_on_the_homogeneous_market():
     "both limits (tests above); the interpolation beta = exp(-balance) fails here."))
 def test_between_the_limits_on_the_heterogeneous_market():
     """The three-type market of tests/test_meanfield.py (different mean busy times
-    1, 2 and 0.5, heterogeneous preferences). Kept strict: it will say when it passes."""
+    1, 2 and 0.5, heterogeneous preferences). Kept strict: it will say when it passes.
+    Cause and a candidate fix (not shipped): docs/two_sided_debiased.md, "Between the
+    limits: what the check found"."""
     check_between_the_limits(three_type_market())
 
 
