@@ -25,8 +25,9 @@
 
 Exit codes (study and sweep): 0 finished; 1 the run failed (e.g. workers kept dying, the cluster
 was unreachable); 2 usage error (bad option, scenario file or store; nothing
-ran); 130 interrupted (Ctrl-C): what finished is printed and, with ``--store``,
-kept for ``--resume``.
+ran); 3 refused by ``--max-seconds`` or ``--max-events`` (the estimate is
+printed); 130 interrupted (Ctrl-C): what finished is printed and, with
+``--store``, kept for ``--resume``.
 """
 
 from __future__ import annotations

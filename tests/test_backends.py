@@ -1,9 +1,10 @@
 """Backends: chunks cover every replication exactly once; a killed worker loses
 nothing (local processes and Dask); Dask gives the same tables as local processes
-for the same seed (study, sweep, design choice)."""
+for the same seed (study, sweep, design choice, horizon plan; the command line)."""
 
 from __future__ import annotations
 
+import functools
 import multiprocessing
 import os
 import signal
@@ -14,6 +15,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 import marketsim as ms
+from marketsim.cli import main
 from marketsim.study import backends, replication
 
 REPLICATE = replication.replicate
@@ -49,41 +51,43 @@ def test_chunks_cover_every_replication_once_in_consecutive_runs(todo, workers, 
     chunks = backends.make_chunks(todo, workers, seconds)
     for job, indices in enumerate(todo):
         assert [i for j, r in chunks if j == job for i in r] == list(indices)
-    longest = max(1, int(backends.CHUNK_SECONDS / seconds))
+    longest = max(1, min(backends.MAX_CHUNK, int(backends.CHUNK_SECONDS / seconds)))
     assert all(1 <= len(r) <= longest and r.step == 1 for _, r in chunks)
 
 
 # ------------------------------------------------------------------ dead workers
-def kill_a_worker_on_first_progress(monkeypatch, pids) -> list:
-    """Make the first progress update (a chunk has finished, others are running) kill
-    one worker process with SIGKILL, as the kernel's out-of-memory killer does."""
-    killed: list = []
-
-    class KillingBar:
-        def __init__(self, *args, **kwargs):
-            pass
-
-        def update(self, count):
-            if not killed:
-                killed.append(pids()[0])
-                os.kill(killed[0], signal.SIGKILL)
-
-        def close(self):
-            pass
-
-    monkeypatch.setattr(backends, "_progress_bar", KillingBar)
-    return killed
+KILLED_AT = 20
+"""The replication whose worker process is killed (once) mid-study."""
 
 
-def test_a_killed_worker_process_loses_nothing(monkeypatch):
+def kill_a_worker_mid_study(monkeypatch, marker) -> None:
+    """Make the worker process that runs replication :data:`KILLED_AT` SIGKILL itself,
+    as the kernel's out-of-memory killer would, the first time only (``marker``
+    records it). The worker dies holding unfinished work whatever the timing, so the
+    loss is certain: killing a worker from outside after the first result raced the
+    workers, which could have finished everything by then."""
+    monkeypatch.setattr(replication, "replicate", functools.partial(_killed_once, marker=marker))
+
+
+def _killed_once(plan, root, index, *, marker):
+    if index == KILLED_AT and multiprocessing.parent_process() is not None:
+        try:
+            os.close(os.open(marker, os.O_CREAT | os.O_EXCL | os.O_WRONLY))
+        except FileExistsError:
+            pass  # killed once already: this is the rerun
+        else:
+            os.kill(os.getpid(), signal.SIGKILL)
+    return REPLICATE(plan, root, index)
+
+
+def test_a_killed_worker_process_loses_nothing(monkeypatch, tmp_path):
     """Two local workers, one killed mid-study: the study finishes with the table of
     an undisturbed run and a warning says what happened."""
     reference = study().run(40, seed=2, progress=False)
-    killed = kill_a_worker_on_first_progress(
-        monkeypatch, lambda: [p.pid for p in multiprocessing.active_children()])
+    kill_a_worker_mid_study(monkeypatch, tmp_path / "killed")
     with pytest.warns(RuntimeWarning, match="a worker process died .* run again"):
         result = study().run(40, seed=2, workers=2, progress=False)
-    assert killed
+    assert (tmp_path / "killed").exists()
     same(result, reference)
 
 
@@ -110,7 +114,7 @@ def test_dask_study_equals_local_processes(client):
     same(study().run(16, seed=7, backend="dask", client=address, progress=False), local)
 
 
-def test_dask_sweep_and_design_choice_equal_local_processes(client):
+def test_dask_sweep_design_choice_and_horizon_plan_equal_local_processes(client):
     market, treatment = ms.scenarios.rehearsal_rooms(), ms.scenarios.instant_confirmation()
     options = {"mode": "simulation", "horizon": 4.0, "burn_in": 1.0, "replications": 6,
                "seed": 3, "progress": False}
@@ -126,17 +130,33 @@ def test_dask_sweep_and_design_choice_equal_local_processes(client):
                              replications=6, seed=3, progress=False, backend="dask",
                              client=client)
     pd.testing.assert_frame_equal(here.table, there.table, check_exact=True)
+    pilots = {"pilot_horizon": 4.0, "burn_in": 1.0, "target_rmse": 0.5, "replications": 6,
+              "seed": 3, "progress": False}
+    here = ms.plan_horizon(market, treatment, ms.CustomerSide(0.5), **pilots)
+    there = ms.plan_horizon(market, treatment, ms.CustomerSide(0.5), backend="dask",
+                            client=client, **pilots)
+    pd.testing.assert_frame_equal(here.table, there.table, check_exact=True)
 
 
-def test_a_killed_dask_worker_loses_nothing(client, monkeypatch):
+def test_a_killed_dask_worker_loses_nothing(client, monkeypatch, tmp_path):
     reference = study().run(40, seed=4, progress=False)
-    workers = sorted(client.run(os.getpid).values())
-    killed = kill_a_worker_on_first_progress(monkeypatch, lambda: workers)
+    kill_a_worker_mid_study(monkeypatch, tmp_path / "killed")
     with pytest.warns(RuntimeWarning, match="left the cluster"):
         result = study().run(40, seed=4, backend="dask", client=client, progress=False)
-    assert killed
+    assert (tmp_path / "killed").exists()
     same(result, reference)
     client.wait_for_workers(2, timeout=60)  # the nanny restarts it for the next tests
+
+
+def test_the_command_line_runs_on_a_dask_cluster_with_a_store(client, scenario, tmp_path):
+    """``marketsim study --dask ADDRESS --store DIR`` gives the table of local processes."""
+    run = ["study", scenario, "--replications", 8, "--seed", 3]
+    assert main(list(map(str, [*run, "--workers", 2, "--out", tmp_path / "local.csv"]))) == 0
+    assert main(list(map(str, [*run, "--dask", client.scheduler.address, "--store",
+                               tmp_path / "store", "--out", tmp_path / "dask.csv"]))) == 0
+    pd.testing.assert_frame_equal(pd.read_csv(tmp_path / "local.csv"),
+                                  pd.read_csv(tmp_path / "dask.csv"), check_exact=True)
+    assert ms.StudyResult.from_store(tmp_path / "store").completed == 8
 
 
 def test_backend_options_are_checked(client):

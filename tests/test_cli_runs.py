@@ -1,4 +1,4 @@
-"""`marketsim study` and `marketsim sweep`: kill and resume, Ctrl-C, exit codes.
+"""`marketsim study` and `marketsim sweep`: kill and resume, Ctrl-C, limits, exit codes.
 
 A run killed with SIGKILL mid-way (no chance to clean up) and resumed into the
 same store must give the table of an uninterrupted run with the same seed.
@@ -6,7 +6,6 @@ same store must give the table of an uninterrupted run with the same seed.
 
 from __future__ import annotations
 
-import json
 import os
 import signal
 import subprocess
@@ -18,32 +17,22 @@ import pandas as pd
 import pytest
 
 from marketsim.cli import main
-from marketsim.model.scenarios import rehearsal_rooms_scenario
 
 ROOT = Path(__file__).resolve().parent.parent
-
-
-@pytest.fixture(scope="module")
-def scenario(tmp_path_factory) -> Path:
-    """The built-in scenario with a short window (replications of a few milliseconds)."""
-    data = json.loads(rehearsal_rooms_scenario().to_json())
-    data["experiment"].update({"horizon": 4.0, "burn_in": 1.0})
-    path = tmp_path_factory.mktemp("scenario") / "rooms.json"
-    path.write_text(json.dumps(data))
-    return path
 
 
 def command(*arguments: object) -> list[str]:
     return [sys.executable, "-m", "marketsim", *map(str, arguments)]
 
 
-def start(*arguments: object) -> subprocess.Popen:
-    return subprocess.Popen(command(*arguments), cwd=ROOT, stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, text=True)
+def start(interruptible, *arguments: object) -> subprocess.Popen:
+    return interruptible(command(*arguments), cwd=ROOT, stdout=subprocess.PIPE,
+                         stderr=subprocess.PIPE, text=True)
 
 
-def stop_when_stored(process: subprocess.Popen, store: Path, how: int, chunks: int = 2) -> None:
-    """Send signal ``how`` once ``chunks`` chunk files are in the store (mid-run)."""
+def stop_when_stored(process: subprocess.Popen, store: Path, how: int, chunks: int = 3) -> None:
+    """Send signal ``how`` once ``chunks`` chunk files are in the store (mid-run; the
+    first two hold the one replication each that runs before the others)."""
     deadline = time.monotonic() + 120
     while len(list(store.glob("study-*/*.parquet"))) < chunks:
         assert process.poll() is None, "the run ended before it could be stopped"
@@ -64,9 +53,9 @@ def tables_equal(first: Path, second: Path) -> None:
      ["--values", 0.5, 2.0]),
 ])
 def test_a_killed_run_resumed_gives_the_uninterrupted_table(tmp_path, scenario, kind, extra,
-                                                             again):
+                                                             again, interruptible):
     store = tmp_path / "store"
-    process = start(kind, scenario, *extra, "--store", store)
+    process = start(interruptible, kind, scenario, *extra, "--store", store)
     stop_when_stored(process, store, signal.SIGKILL)
     process.wait(timeout=60)
     assert process.returncode == -signal.SIGKILL
@@ -77,9 +66,9 @@ def test_a_killed_run_resumed_gives_the_uninterrupted_table(tmp_path, scenario, 
     tables_equal(tmp_path / "resumed.csv", tmp_path / "whole.csv")
 
 
-def test_ctrl_c_exits_130_and_keeps_what_finished(tmp_path, scenario):
+def test_ctrl_c_exits_130_and_keeps_what_finished(tmp_path, scenario, interruptible):
     store = tmp_path / "store"
-    process = start("study", scenario, "--replications", 600, "--store", store)
+    process = start(interruptible, "study", scenario, "--replications", 600, "--store", store)
     stop_when_stored(process, store, signal.SIGINT)
     _, errors = process.communicate(timeout=60)
     assert process.returncode == 130, errors[-2000:]
@@ -104,3 +93,18 @@ def test_usage_errors_exit_2_and_run_nothing(tmp_path, scenario, capsys):
         main(["sweep", str(scenario), "--values", "1", "--store", str(store), "--resume"])
     assert stopped.value.code == 2
     assert "holds a study, not a sweep" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("kind, extra", [("study", []), ("sweep", ["--values", 0.5, 2.0])])
+def test_a_run_over_its_limits_exits_3_with_the_estimate(tmp_path, scenario, kind, extra,
+                                                         capsys):
+    run = [kind, scenario, *extra, "--replications", 100_000]
+    assert main(list(map(str, [*run, "--max-events", 1000]))) == 3
+    assert f"refused: this {kind} would simulate about" in capsys.readouterr().err
+    store = tmp_path / "store"
+    assert main(list(map(str, [*run, "--max-seconds", 1, "--store", store]))) == 3
+    told = capsys.readouterr().err
+    assert "max_seconds=1" in told and f"kept in {str(store)!r}" in told
+    with pytest.raises(SystemExit) as stopped:
+        main(list(map(str, [*run, "--max-events", 0])))
+    assert stopped.value.code == 2

@@ -1,5 +1,6 @@
-"""Results store: resume runs only what is missing, refuses another question, never
-reads a corrupt chunk as data; a study read back from a store is the study run."""
+"""Results store: resume runs only what is missing (a study, a horizon plan), refuses
+another question, never reads a corrupt chunk as data; a study read back from a store is
+the study run."""
 
 from __future__ import annotations
 
@@ -10,7 +11,10 @@ import pandas as pd
 import pytest
 
 import marketsim as ms
+from marketsim.study import replication
 from marketsim.study.store import describe, question_hash, read_manifest
+
+REPLICATE = replication.replicate
 
 
 def small_study(arrival_rate: float = 16.0) -> ms.Study:
@@ -116,3 +120,30 @@ def test_store_with_workers_gives_the_same_tables(tmp_path, reference):
         result = small_study().run(12, seed=5, workers=2, progress=False,
                                    store=tmp_path / "store")
     same(result, reference)
+
+
+def test_an_interrupted_horizon_plan_resumes_from_its_store(tmp_path, monkeypatch):
+    """Ctrl-C after 5 of the 2 x 8 pilot replications; the rerun into the store runs
+    only the 11 missing ones and gives the plan of an uninterrupted run."""
+    market, treatment = ms.scenarios.rehearsal_rooms(), ms.scenarios.instant_confirmation()
+    options = {"pilot_horizon": 4.0, "burn_in": 1.0, "target_rmse": 0.5, "replications": 8,
+               "seed": 3, "progress": False}
+    whole = ms.plan_horizon(market, treatment, ms.CustomerSide(0.5), **options)
+    ran = []
+
+    def counted(plan, root, index):
+        if len(ran) == 5 and stop:
+            raise KeyboardInterrupt
+        ran.append(index)
+        return REPLICATE(plan, root, index)
+
+    monkeypatch.setattr(replication, "replicate", counted)
+    store = tmp_path / "store"
+    stop = True
+    with pytest.raises(KeyboardInterrupt, match="kept in"):
+        ms.plan_horizon(market, treatment, ms.CustomerSide(0.5), store=store, **options)
+    stop = False
+    ran.clear()
+    resumed = ms.plan_horizon(market, treatment, ms.CustomerSide(0.5), store=store, **options)
+    assert len(ran) == 2 * 8 - 5
+    pd.testing.assert_frame_equal(resumed.table, whole.table, check_exact=True)

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import signal
+import threading
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -152,7 +154,7 @@ def run_cells(
                     run.bin_arrivals[block:block + 1])
                 run.enter_piece(burn_in + start_time, burn_in + end_time,
                                 cells if treated else control, recording)
-                while not run.step(size):
+                while not _step_holding_ctrl_c(run, size):
                     slices += 1
                     size = slice_events if slices >= 2 else size
                     if on_slice is not None:
@@ -161,7 +163,7 @@ def run_cells(
             kept = float(schedule.kept_lengths.sum())
             return _ledger(run, cells, kept, n_bins, horizon, block_time.sum(axis=0) / kept,
                            schedule)
-        while not run.step(size):
+        while not _step_holding_ctrl_c(run, size):
             slices += 1
             size = slice_events if slices >= 2 else size
             if on_slice is not None:
@@ -179,6 +181,32 @@ def run_cells(
             + ("" if partial else " (None: the window had not started, or the run was a "
                "switchback)"), partial) from None
     return _ledger(run, cells, horizon, n_bins, horizon, run.available_time / horizon)
+
+
+def _step_holding_ctrl_c(run: KernelRun, size: int) -> bool:
+    """One slice, with Ctrl-C held until it ends (then raised as usual).
+
+    The first call of a kernel in a process compiles or loads it through LLVM, whose
+    callbacks into Python swallow a ``KeyboardInterrupt`` raised inside them
+    ("Exception ignored on calling ctypes callback function"): a Ctrl-C in that
+    window (the first tenths of a second of a fresh process) was lost, so the run
+    went on to its end, and it cut the compilation half-way. Holding SIGINT for the
+    call avoids both; a slice lasts about a tenth of a second. Only the main thread
+    receives signals, so other threads (Dask workers) and an ignored SIGINT (worker
+    processes) run the slice as it is.
+    """
+    handler = signal.getsignal(signal.SIGINT)
+    if (threading.current_thread() is not threading.main_thread()
+            or not callable(handler)):  # SIG_IGN, SIG_DFL or not set from Python
+        return run.step(size)
+    held: list[int] = []
+    signal.signal(signal.SIGINT, lambda signum, frame: held.append(signum))
+    try:
+        return run.step(size)
+    finally:
+        signal.signal(signal.SIGINT, handler)
+        if held:
+            signal.raise_signal(signal.SIGINT)  # to the handler in place: Ctrl-C as usual
 
 
 class SimulationInterrupted(KeyboardInterrupt):

@@ -3,8 +3,10 @@
 Both print their table (and write it as CSV with ``--out``) and return an exit
 code with a message: 0 finished; 1 the run failed (workers kept dying, the
 cluster went away); 2 usage error, nothing ran (bad option, or a store made for
-another question); 130 interrupted by Ctrl-C, what finished is printed and,
-with ``--store``, kept there for ``--resume``.
+another question); 3 refused by ``--max-seconds`` or ``--max-events`` (the
+message gives the estimate, from the first replications); 130 interrupted by
+Ctrl-C, what finished is printed and, with ``--store``, kept there for
+``--resume``.
 """
 
 from __future__ import annotations
@@ -18,6 +20,7 @@ from marketsim.model.scenario_file import Scenario
 from marketsim.planning import sweep
 from marketsim.report.full_report import STANDARD_DESIGNS
 from marketsim.study import Study
+from marketsim.study.guards import RunRefused, limits
 from marketsim.study.store import MANIFEST, read_manifest
 
 BUILTIN = "builtin"
@@ -25,7 +28,7 @@ BUILTIN = "builtin"
 
 REPLICATIONS = 200
 SEED = 2026
-EXIT = {"ok": 0, "failed": 1, "usage": 2, "interrupted": 130}
+EXIT = {"ok": 0, "failed": 1, "usage": 2, "refused": 3, "interrupted": 130}
 SWEEP_SHOWN = ["value", "balance", "arm", "estimator", "bias", "bias_mc_se", "sd", "rmse",
                "coverage", "replications"]
 
@@ -48,6 +51,10 @@ def add_run_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--dask", metavar="ADDRESS", default=None,
                         help="run on the Dask cluster whose scheduler is at ADDRESS "
                              "(e.g. tcp://10.0.0.5:8786)")
+    parser.add_argument("--max-seconds", type=float, default=None,
+                        help="refuse (exit 3) a run estimated to take longer (wall seconds)")
+    parser.add_argument("--max-events", type=int, default=None,
+                        help="refuse (exit 3) a run estimated to simulate more events")
     parser.add_argument("--out", default=None, help="also write the table to this CSV file")
 
 
@@ -76,9 +83,10 @@ def run_options(args: argparse.Namespace) -> dict:
         raise ValueError(f"--workers must be a whole number >= 1, got {args.workers}")
     if seed is not None and seed < 0:
         raise ValueError(f"--seed must be a whole number >= 0, got {seed}")
+    max_seconds, max_events = limits(args.max_seconds, args.max_events)
     return {"replications": replications, "seed": seed, "workers": args.workers,
             "store": store, "backend": "local" if args.dask is None else "dask",
-            "client": args.dask}
+            "client": args.dask, "max_seconds": max_seconds, "max_events": max_events}
 
 
 def run_study_command(scenario: Scenario, args: argparse.Namespace) -> tuple[int, str]:
@@ -93,6 +101,8 @@ def run_study_command(scenario: Scenario, args: argparse.Namespace) -> tuple[int
     print(f"Study of {scenario.name}: {len(study.arms)} designs, {count} replications")
     try:
         result = study.run(count, progress=True, **options)
+    except RunRefused as error:
+        return EXIT["refused"], _refused(error, options)
     except KeyboardInterrupt:
         return EXIT["interrupted"], _interrupted("fewer than 2 replications", options)
     except ValueError as error:
@@ -123,6 +133,8 @@ def run_sweep_command(scenario: Scenario, args: argparse.Namespace) -> tuple[int
                       parameter=args.parameter, mode="simulation", horizon=scenario.horizon,
                       burn_in=scenario.burn_in, replications=count, progress=True,
                       **options)
+    except RunRefused as error:
+        return EXIT["refused"], _refused(error, options)
     except KeyboardInterrupt:
         return EXIT["interrupted"], _interrupted("no point", options)
     except ValueError as error:
@@ -142,6 +154,12 @@ def _interrupted(finished: str, options: dict) -> str:
     kept = (f"; they are kept in {options['store']!r}: run the same command with --resume to "
             "finish" if options["store"] is not None else "")
     return f"interrupted: {finished} finished{kept}"
+
+
+def _refused(error: RunRefused, options: dict) -> str:
+    kept = (f"; the replications it ran are kept in {options['store']!r} (--resume with "
+            "higher limits goes on)" if options["store"] is not None else "")
+    return f"refused: {error}{kept}"
 
 
 def _write(table: pd.DataFrame, out: str | None) -> None:

@@ -15,6 +15,7 @@ they run again on a fresh pool (local) or another worker (Dask), at most
 
 from __future__ import annotations
 
+import math
 import multiprocessing
 import signal
 import time
@@ -24,13 +25,16 @@ from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 
+from marketsim.study.dask_backend import dask_client, run_dask, workers_of
 from marketsim.study.progress import progress_bar_class
-from marketsim.study.store import package_version
 
 BACKENDS = ("local", "dask")
 
 CHUNK_SECONDS = 0.5
 """Target wall time of one chunk of replications."""
+
+MAX_CHUNK = 1000
+"""Most replications in one chunk, however fast they are."""
 
 MAX_RETRIES = 3
 """Times the chunks of a dead worker are run again before the run gives up."""
@@ -73,12 +77,13 @@ class Work:
 
 def run(work: Work, deliver: Deliver, *, backend: str = "local", workers: int = 1,
         client: object = None, progress: bool = True, desc: str = "study",
-        check: Callable[[float, object, int, int], None] | None = None) -> int:
+        check: Callable[[float | None, object, int, int], None] | None = None) -> int:
     """Run every replication of ``work``, calling ``deliver(study, indices, outcomes)``
     in this process as each chunk finishes; return the number of workers used
     (Dask: the cluster's threads). ``check(seconds, outcome, total, workers)``, if
-    given, sees the first replication (run here and timed) before the others start,
-    and may refuse the run by raising.
+    given, may refuse the run by raising: it sees the first replication's outcome
+    (run here) with ``seconds=None`` as soon as it is done, and again with the time
+    of a warm replication (:func:`_timed_here`) before the others start.
 
     Raises
     ------
@@ -89,26 +94,21 @@ def run(work: Work, deliver: Deliver, *, backend: str = "local", workers: int = 
     """
     if work.total == 0:
         return workers
-    job = next(j for j, indices in enumerate(work.todo) if indices)
-    first = work.todo[job][0]
-    began = time.perf_counter()  # one replication here, to size the chunks
-    outcome = work.replicate(work.plans[job], work.roots[job], first)
-    seconds = time.perf_counter() - began
-    deliver(job, range(first, first + 1), [outcome])
-    todo = list(work.todo)
-    todo[job] = todo[job][1:]
+    seconds, outcome, todo = _timed_here(work, deliver, check)
+    started = work.total - sum(len(indices) for indices in todo)
     owned = None
     try:
         if backend == "dask":
             client, owned = dask_client(client)
-            workers = max(1, sum(w["nthreads"] for w in _workers(client).values()))
+            workers = max(1, sum(w["nthreads"] for w in workers_of(client).values()))
         if check is not None:
             check(seconds, outcome, work.total, workers)
         chunks = make_chunks(todo, workers, seconds)
-        bar = _progress_bar(work.total, progress, desc, initial=1)
+        bar = _progress_bar(work.total, progress, desc, initial=started)
         try:
             if backend == "dask":
-                _run_dask(work, chunks, client, bar, deliver)
+                run_dask(work, chunks, client, bar, deliver, retries=MAX_RETRIES,
+                         describe=_describe)
             elif workers == 1:
                 _run_here(work, chunks, bar, deliver)
             else:
@@ -121,15 +121,42 @@ def run(work: Work, deliver: Deliver, *, backend: str = "local", workers: int = 
             owned.close()
 
 
+def _timed_here(work: Work, deliver: Deliver, check: Callable | None
+                ) -> tuple[float, object, list[tuple[int, ...]]]:
+    """Run the first one or two replications here, to size the chunks and judge the run.
+
+    The first one loads and compiles the kernels (seconds in a fresh process, far
+    longer than a replication), so the second one is timed: sizing chunks from the
+    first made them a replication each. ``check``, if given, sees the first one's
+    outcome before the second runs (``seconds=None``: not timed yet). Returns the
+    time of the faster of the two, the first outcome and what is left to do.
+    """
+    todo = [list(indices) for indices in work.todo]
+    seconds, first = math.inf, None
+    for _ in range(min(2, work.total)):
+        job = next(j for j, indices in enumerate(todo) if indices)
+        index = todo[job].pop(0)
+        began = time.perf_counter()
+        outcome = work.replicate(work.plans[job], work.roots[job], index)
+        seconds = min(seconds, time.perf_counter() - began)
+        deliver(job, range(index, index + 1), [outcome])
+        if first is None:
+            first = outcome
+            if check is not None:
+                check(None, outcome, work.total, 1)
+    return seconds, first, [tuple(indices) for indices in todo]
+
+
 def make_chunks(todo: Sequence[Sequence[int]], workers: int, seconds: float) -> list[Chunk]:
     """Chunks of consecutive indices covering ``todo``.
 
     Guided sizes: a chunk is at most a quarter of the work left per worker, so
-    chunks shrink towards the end and the workers finish together, and at most
-    :data:`CHUNK_SECONDS` long (judged from ``seconds``, the time of one
-    replication). Chunks never change what a replication computes.
+    chunks shrink towards the end and the workers finish together, at most
+    :data:`CHUNK_SECONDS` long (judged from ``seconds``, the time of one warm
+    replication) and at most :data:`MAX_CHUNK` replications. Chunks never change
+    what a replication computes.
     """
-    by_time = max(1, int(CHUNK_SECONDS / max(seconds, 1e-9)))
+    by_time = max(1, min(MAX_CHUNK, int(CHUNK_SECONDS / max(seconds, 1e-9))))
     left = sum(len(indices) for indices in todo)
     chunks = []
     for job, indices in enumerate(todo):
@@ -255,94 +282,3 @@ def _stop(executor: ProcessPoolExecutor) -> None:
             process.terminate()
     for process in started.values():
         process.join(timeout=5)
-
-
-# --------------------------------------------------------------------------- dask
-def dask_client(client: object) -> tuple[object, object]:
-    """``(client, owned)``: a ``dask.distributed.Client`` for ``client`` (a Client or
-    a scheduler address); ``owned`` is the client made here (to close), or None."""
-    try:
-        from distributed import Client
-    except ImportError:
-        raise ValueError("backend 'dask' needs dask.distributed: pip install "
-                         "'marketsim[dask]'") from None
-    if isinstance(client, Client):
-        return client, None
-    if isinstance(client, str) and client.strip():
-        try:
-            made = Client(client, timeout=30)
-        except OSError as error:
-            raise ValueError(f"client must be a dask.distributed Client or the address of a "
-                             f"running scheduler, got {client!r}: {error}") from None
-        return made, made
-    raise ValueError("backend 'dask' needs client= a dask.distributed Client or a scheduler "
-                     f"address such as 'tcp://10.0.0.5:8786', got {client!r}")
-
-
-def _workers(client) -> dict:
-    return client.scheduler_info(n_workers=-1)["workers"]
-
-
-def _dask_chunk(replicate: Callable, plan: object, root: tuple, indices: range) -> list:
-    return [replicate(plan, root, r) for r in indices]
-
-
-def _run_dask(work: Work, chunks: list[Chunk], client, bar, deliver: Deliver) -> None:
-    """Run on a Dask cluster: one task per chunk, results gathered as they complete."""
-    from distributed import KilledWorker, as_completed
-
-    _check_versions(client)
-    plans = [client.scatter(plan, broadcast=True, hash=False) for plan in work.plans]
-    known = set(_workers(client))
-    gone: set[str] = set()
-
-    def submit(chunk: Chunk):
-        job, indices = chunk
-        return client.submit(_dask_chunk, work.replicate, plans[job], work.roots[job], indices,
-                             pure=False)
-
-    pending = {submit(chunk): (chunk, 0) for chunk in chunks}
-    finished = as_completed(list(pending))
-    try:
-        for future in finished:
-            chunk, attempt = pending.pop(future)
-            try:
-                outcomes = future.result()
-            except KilledWorker as error:
-                if attempt == MAX_RETRIES:
-                    raise RuntimeError(f"{_describe(chunk)} killed its Dask workers "
-                                       f"{MAX_RETRIES + 1} times; gave up: {error}") from None
-                warnings.warn(f"{_describe(chunk)} was on Dask workers that died; it runs "
-                              f"again (retry {attempt + 1} of {MAX_RETRIES}); results are "
-                              "unaffected", RuntimeWarning, stacklevel=4)
-                again = submit(chunk)
-                pending[again] = (chunk, attempt + 1)
-                finished.add(again)
-                continue
-            deliver(*chunk, outcomes)
-            bar.update(len(chunk[1]))
-            now = set(_workers(client))
-            left = known - now - gone
-            if left:
-                gone |= left
-                warnings.warn(
-                    f"Dask worker(s) {', '.join(sorted(left))} left the cluster during the run "
-                    "(killed, out of memory or stopped); the scheduler runs their unfinished "
-                    "chunks elsewhere; results are unaffected", RuntimeWarning, stacklevel=4)
-            known |= now
-    finally:
-        if pending:
-            client.cancel(list(pending))
-        for plan in plans:
-            plan.release()
-
-
-def _check_versions(client) -> None:
-    """Refuse workers whose marketsim differs from this process's (results would too)."""
-    mine = package_version()
-    versions = client.run(package_version)
-    other = {address: v for address, v in versions.items() if v != mine}
-    if other:
-        shown = ", ".join(f"{a}: {v}" for a, v in sorted(other.items())[:3])
-        raise ValueError(f"client: every Dask worker needs marketsim {mine} (this process), "
-                         f"found {shown}")

@@ -2,10 +2,11 @@
 
 A single simulation is timed on its second short slice of events (the first
 may include compiling the kernel); its events are extrapolated from the
-simulated time reached. A study is timed on its first replication. Either
-estimate is refused with a ``ValueError`` that gives it when it exceeds
-``max_seconds`` or ``max_events``; otherwise a long single run shows it in a
-progress bar. Estimates are rough (the early part of a run from an empty start
+simulated time reached. A study counts the events of its first replication and
+times its second (the first includes loading the kernels). Either estimate is
+refused with a :class:`RunRefused` (a ``ValueError``) that gives it when it
+exceeds ``max_seconds`` or ``max_events``; otherwise a long single run shows it
+in a progress bar. Estimates are rough (the early part of a run from an empty start
 is busier than its steady state), so leave a margin.
 """
 
@@ -27,15 +28,21 @@ def limits(max_seconds: float | None, max_events: int | None) -> tuple[float | N
     return max_seconds, max_events
 
 
-def refuse(what: str, events: float, seconds: float, basis: str,
+class RunRefused(ValueError):
+    """A run refused by ``max_seconds`` or ``max_events``; the message gives the estimate."""
+
+
+def refuse(what: str, events: float, seconds: float | None, basis: str,
            max_seconds: float | None, max_events: int | None) -> None:
-    """Raise ``ValueError`` if the estimate passes a limit."""
-    estimate = f"about {events:,.0f} events and {seconds:,.3g} s, {basis}"
+    """Raise :class:`RunRefused` if the estimate passes a limit (``seconds=None``: not
+    known yet)."""
+    timed = "" if seconds is None else f" and {seconds:,.3g} s"
+    estimate = f"about {events:,.0f} events{timed}, {basis}"
     if max_events is not None and events > max_events:
-        raise ValueError(f"{what} would simulate {estimate}: more than max_events="
+        raise RunRefused(f"{what} would simulate {estimate}: more than max_events="
                          f"{max_events:,}; shorten the run or raise max_events")
-    if max_seconds is not None and seconds > max_seconds:
-        raise ValueError(f"{what} would take {estimate}: more than max_seconds="
+    if max_seconds is not None and seconds is not None and seconds > max_seconds:
+        raise RunRefused(f"{what} would take {estimate}: more than max_seconds="
                          f"{max_seconds:g}; shorten the run or raise max_seconds")
 
 
@@ -78,7 +85,7 @@ class SliceGuard:
                             unit="%", bar_format="{desc}: {percentage:3.0f}%|{bar}| "
                                                  "{elapsed}<{remaining}")
         if self.max_events is not None and state.events > self.max_events:
-            raise ValueError(f"simulate passed max_events={self.max_events:,} at "
+            raise RunRefused(f"simulate passed max_events={self.max_events:,} at "
                              f"{state.events:,} events")
         self.bar.update(100 * state.fraction - self.bar.n)
 

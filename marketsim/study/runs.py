@@ -71,7 +71,8 @@ def run_studies(studies: Sequence, replications: int, seed: SeedLike, *, kind: s
         More of the question (e.g. a sweep's values), recorded in the store.
     max_seconds, max_events : float, int, optional
         Refuse the run (``ValueError`` with the estimate) if, judged from its
-        first replication, the rest would take longer or simulate more events.
+        first replication (events) and a warm one (time; the first includes
+        loading the kernels), the whole would take longer or simulate more events.
 
     Returns
     -------
@@ -92,10 +93,15 @@ def run_studies(studies: Sequence, replications: int, seed: SeedLike, *, kind: s
         backends.dask_client(client)  # the error that says what client must be
     max_seconds, max_events = limits(max_seconds, max_events)
 
-    def check_estimate(seconds: float, outcome, total: int, used: int) -> None:
+    def check_estimate(seconds: float | None, outcome, total: int, used: int) -> None:
+        if seconds is None:  # the first replication, not timed yet: its events
+            refuse(f"this {kind}", outcome.events * total, None,
+                   f"estimated from its first replication ({outcome.events:,} events)",
+                   None, max_events)
+            return
         refuse(f"this {kind}", outcome.events * total, seconds * total / used,
-               f"estimated from its first replication ({outcome.events:,} events in "
-               f"{seconds:.3g} s) on {used} worker(s)", max_seconds, max_events)
+               f"estimated from its first replication ({outcome.events:,} events) and a "
+               f"warm one ({seconds:.3g} s) on {used} worker(s)", max_seconds, max_events)
 
     question = {"studies": [study_question(s) for s in studies], **(asked or {})}
     opened, root = open_store(store, kind=kind, question=question, seed=seed)

@@ -196,9 +196,11 @@ class Study:
             runs only the missing ones. A store made for another study or seed
             is refused.
         max_seconds, max_events : float, int, optional
-            Refuse the run if, judged from its first replication (run and timed
-            before the others), the whole would take longer or simulate more
-            events; the ``ValueError`` gives the estimate.
+            Refuse the run if, judged from its first two replications (run
+            here before the others: the events of the first, the time of the
+            second, as the first includes loading the kernels), the whole would
+            take longer or simulate more events; the ``ValueError`` gives the
+            estimate.
 
         Returns
         -------
