@@ -13,6 +13,7 @@ from __future__ import annotations
 import itertools
 import math
 import re
+import warnings
 
 import numpy as np
 import pytest
@@ -302,3 +303,17 @@ def test_default_candidates_add_switchbacks_that_fit_the_horizon_and_files_name_
     with pytest.raises(ValueError, match="candidates must not include a switchback here"):
         ms.choose_design_robustly([MARKET, MARKET], TREATMENT, horizon=50.0,
                                   candidates=[ms.Switchback(5.0)], replications=2)
+
+
+def test_alternating_blocks_in_step_with_the_day_are_warned_about():
+    # Two blocks of 12 hours repeat with a 24-hour profile of a quiet night (multiplier 1
+    # for hours 0-12) and a busy day (3 for hours 12-24): treated blocks (hours 0-12) get
+    # 12 / (12 + 36) = 25% of the demand, counted by hand.
+    daily = MARKET.replace(demand=ms.DemandProfile([1, 3], period=24.0))
+    with pytest.warns(RuntimeWarning, match=r"alternating blocks of 12 .* get 25% of the demand"):
+        ms.Switchback(12.0, burn_in=1.0, assignment="alternating").split(daily)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        ms.Switchback(24.0, burn_in=1.0, assignment="alternating").split(daily)  # whole days
+        ms.Switchback(12.0, burn_in=1.0, assignment="random").split(daily)
+        ms.Switchback(12.0, burn_in=1.0, assignment="alternating").split(MARKET)  # flat

@@ -11,6 +11,7 @@ market's state across the switches (:mod:`marketsim.engine.runner`).
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -150,8 +151,29 @@ class Switchback(Design):
                            check.choice("assignment", self.assignment, ASSIGNMENTS))
 
     def split(self, market: Market) -> CellSplit:
-        """The cells of a treated block: every customer and listing exposed."""
+        """The cells of a treated block: every customer and listing exposed (with a
+        warning when alternating blocks fall in step with the market's demand cycle)."""
+        self._warn_in_step_with_demand(market)
         return CellSplit.from_fractions(market, customers=1.0, listings=1.0)
+
+    def _warn_in_step_with_demand(self, market: Market) -> None:
+        """Warn when alternating blocks give the treated blocks a different share of
+        the demand than of the time (over the first 100 blocks): the demand cycle then
+        enters the estimate."""
+        profile = market.demand
+        if self.assignment != "alternating" or profile is None or profile.is_flat:
+            return
+        starts = np.arange(0, 100, 2) * self.block_length
+        treated_demand = sum(profile.cumulative(t + self.block_length) - profile.cumulative(t)
+                             for t in starts)
+        share = treated_demand / profile.cumulative(100 * self.block_length)
+        if abs(share - 0.5) > 0.02:
+            warnings.warn(
+                f"Switchback: alternating blocks of {self.block_length:g} fall in step with "
+                f"the demand profile (period {profile.period:g}): treated blocks get "
+                f"{share:.0%} of the demand in half the time, so the demand cycle biases the "
+                "estimate; use assignment='random' or blocks of whole periods",
+                RuntimeWarning, stacklevel=3)
 
     @property
     def label(self) -> str:
