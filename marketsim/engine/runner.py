@@ -143,6 +143,18 @@ def run_cells(
     run = KernelRun(cells, cells.starting_counts(start), burn_in=burn_in, end=end,
                     n_bins=n_bins, streams=engine_streams(seed), engine=engine)
     size, slices = min(slice_events, FIRST_SLICE_EVENTS), 0
+
+    def run_to_piece_end() -> None:
+        """Slice after slice to the end of the run's current piece (the whole run
+        unless it is a switchback), with ``on_slice`` between slices."""
+        nonlocal size, slices
+        while not _step_holding_ctrl_c(run, size):
+            slices += 1
+            size = slice_events if slices >= 2 else size
+            if on_slice is not None:
+                on_slice(SliceProgress(time=run.time, end=end, events=run.events,
+                                       engine=run.engine))
+
     try:
         if switchback:
             block_time = np.zeros((n_bins, n_listing))
@@ -154,21 +166,11 @@ def run_cells(
                     run.bin_arrivals[block:block + 1])
                 run.enter_piece(burn_in + start_time, burn_in + end_time,
                                 cells if treated else control, recording)
-                while not _step_holding_ctrl_c(run, size):
-                    slices += 1
-                    size = slice_events if slices >= 2 else size
-                    if on_slice is not None:
-                        on_slice(SliceProgress(time=run.time, end=end, events=run.events,
-                                               engine=run.engine))
+                run_to_piece_end()
             kept = float(schedule.kept_lengths.sum())
             return _ledger(run, cells, kept, n_bins, horizon, block_time.sum(axis=0) / kept,
                            schedule)
-        while not _step_holding_ctrl_c(run, size):
-            slices += 1
-            size = slice_events if slices >= 2 else size
-            if on_slice is not None:
-                on_slice(SliceProgress(time=run.time, end=end, events=run.events,
-                                       engine=run.engine))
+        run_to_piece_end()
     except KeyboardInterrupt:
         reached = min(run.time, end)
         partial = None
