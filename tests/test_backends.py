@@ -166,3 +166,24 @@ def test_backend_options_are_checked(client):
         study().run(4, seed=1, backend="dask", progress=False)
     with pytest.raises(ValueError, match="client is only for backend='dask'"):
         study().run(4, seed=1, client=client, progress=False)
+
+
+def test_a_failed_question_about_the_dask_workers_does_not_fail_a_finished_run():
+    """The watch over the workers is advisory: when asking the scheduler fails (seen as a
+    rare AssertionError inside tornado's write buffer), it warns and the run goes on."""
+    from marketsim.study.dask_backend import _WorkerWatch
+
+    class Scheduler:
+        def __init__(self) -> None:
+            self.calls = 0
+
+        def scheduler_info(self, n_workers: int = -1) -> dict:
+            self.calls += 1
+            if self.calls > 1:
+                raise AssertionError
+            return {"workers": {"tcp://a": {}, "tcp://b": {}}}
+
+    watch = _WorkerWatch(Scheduler())
+    with pytest.warns(RuntimeWarning, match="could not ask the Dask scheduler"):
+        watch.look()
+    assert watch.known == {"tcp://a", "tcp://b"} and not watch.gone

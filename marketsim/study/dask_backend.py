@@ -116,7 +116,16 @@ class _WorkerWatch:
     def look(self, every: float = 0.0) -> None:
         if time.monotonic() - self.last < every:
             return
-        now = set(workers_of(self.client))
+        try:
+            now = set(workers_of(self.client))
+        except (AssertionError, OSError) as error:
+            # advisory only: the results are in hand, so a failed question about the
+            # workers must not fail the run (a rare AssertionError inside tornado's
+            # write buffer was seen here with a second client in the same process)
+            warnings.warn(f"could not ask the Dask scheduler which workers are alive "
+                          f"({type(error).__name__}); results are unaffected",
+                          RuntimeWarning, stacklevel=5)
+            return
         self.last = time.monotonic()
         left = self.known - now - self.gone
         if left:
