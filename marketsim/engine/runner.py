@@ -143,6 +143,7 @@ def run_cells(
     run = KernelRun(cells, cells.starting_counts(start), burn_in=burn_in, end=end,
                     n_bins=n_bins, streams=engine_streams(seed), engine=engine)
     size, slices = min(slice_events, FIRST_SLICE_EVENTS), 0
+    finished_blocks = 0  # a switchback's blocks simulated to their end
 
     def run_to_piece_end() -> None:
         """Slice after slice to the end of the run's current piece (the whole run
@@ -167,6 +168,7 @@ def run_cells(
                 run.enter_piece(burn_in + start_time, burn_in + end_time,
                                 cells if treated else control, recording)
                 run_to_piece_end()
+                finished_blocks = max(finished_blocks, block + 1)
             kept = float(schedule.kept_lengths.sum())
             return _ledger(run, cells, kept, n_bins, horizon, block_time.sum(axis=0) / kept,
                            schedule)
@@ -174,14 +176,19 @@ def run_cells(
     except KeyboardInterrupt:
         reached = min(run.time, end)
         partial = None
-        if reached > burn_in and not switchback:
+        if switchback and finished_blocks:
+            partial = _finished_blocks_ledger(run, cells, schedule, block_time,
+                                              finished_blocks)
+        elif reached > burn_in and not switchback:
             partial = _ledger(run, cells, reached - burn_in, n_bins, horizon,
                               np.full(n_listing, np.nan))
+        kept = (f"the {finished_blocks} switchback block(s) simulated to their end"
+                if switchback else "the part of the window simulated")
         raise SimulationInterrupted(
             f"simulation interrupted at time {reached:.6g} of {end:.6g} ({run.events:,} "
-            "events); the error's .ledger holds the part of the window simulated"
-            + ("" if partial else " (None: the window had not started, or the run was a "
-               "switchback)"), partial) from None
+            f"events); the error's .ledger holds {kept}"
+            + ("" if partial else " (None: nothing of the window was finished)"),
+            partial) from None
     return _ledger(run, cells, horizon, n_bins, horizon, run.available_time / horizon)
 
 
@@ -213,13 +220,29 @@ def _step_holding_ctrl_c(run: KernelRun, size: int) -> bool:
 
 class SimulationInterrupted(KeyboardInterrupt):
     """Ctrl-C stopped a run; ``ledger`` is the part of the measurement window simulated
-    (its ``window`` is that part's length, ``mean_available`` is NaN), or None if the
-    window had not started. A study catches it like any Ctrl-C and keeps its finished
+    (its ``window`` is that part's length, ``mean_available`` is NaN; for a switchback,
+    the blocks simulated to their end, with their own ``blocks`` schedule), or None if
+    nothing of the window was finished. A study catches it like any Ctrl-C and keeps its finished
     replications."""
 
     def __init__(self, message: str, ledger: Ledger | None) -> None:
         super().__init__(message)
         self.ledger = ledger
+
+
+def _finished_blocks_ledger(run: KernelRun, cells: MarketCells, schedule: BlockSchedule,
+                            block_time: np.ndarray, done: int) -> Ledger:
+    """The ledger of a switchback's first ``done`` blocks (those simulated to their end)."""
+    blocks = BlockSchedule(schedule.starts[:done], schedule.ends[:done],
+                           schedule.kept_starts[:done], schedule.treated[:done])
+    window = float(blocks.kept_lengths.sum())
+    bin_bookings, bin_arrivals = run.bin_bookings[:done], run.bin_arrivals[:done]
+    return Ledger(cells=cells, bookings=bin_bookings.sum(axis=0),
+                  arrivals=bin_arrivals.sum(axis=0), window=window,
+                  mean_available=block_time[:done].sum(axis=0) / window,
+                  final_available=run.available, events=run.events, bin_edges=blocks.edges,
+                  bin_bookings=bin_bookings, bin_arrivals=bin_arrivals, engine=run.engine,
+                  blocks=blocks)
 
 
 def _ledger(run: KernelRun, cells: MarketCells, window: float, n_bins: int, horizon: float,

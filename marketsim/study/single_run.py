@@ -111,8 +111,9 @@ def simulate(
         engine returns to Python between slices of events). It is a
         ``KeyboardInterrupt`` whose ``ledger`` holds the part of the window
         simulated so far (``window`` is that part's length; ``mean_available``
-        is NaN), or None if the window had not started: a partial ledger is
-        never returned as if it were whole.
+        is NaN; for a switchback, its blocks simulated to their end), or None if
+        nothing of the window was finished: a partial ledger is never returned
+        as if it were whole.
 
     Examples
     --------
