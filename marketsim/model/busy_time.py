@@ -240,7 +240,9 @@ class Empirical(BusyTime):
                 f"empirical stays must hold at least 2 values, got {stays.size}"
             )
         if stays.mean() <= 0.0:
-            raise ValueError("empirical stays must have a mean > 0, got all zeros")
+            raise ValueError(f"empirical stays must have a mean > 0, got a mean of "
+                             f"{stays.mean():g} over {stays.size} stays (largest "
+                             f"{stays.max():g})")
         object.__setattr__(self, "stays", stays)
 
     @property
