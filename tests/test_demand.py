@@ -34,6 +34,8 @@ def test_multipliers_average_one_over_the_period():
     (([1.0, -0.5], 24.0), "multipliers must contain finite numbers >= 0, got -0.5 at index 1"),
     (([1.0, float("nan")], 24.0), "multipliers must contain finite numbers >= 0, got nan"),
     (([0.0, 0.0], 24.0), "multipliers must not all be 0"),
+    (([5e-324, 0.0, 0.0], 24.0), "multipliers must have a mean over the period that they can "
+                                 "be divided by (> 0 in floating point), got a mean of 0"),
     (([], 24.0), "multipliers must hold at least one value"),
     (([1.0, 2.0], 0.0), "period must be a finite number > 0, got 0.0"),
     (([1.0, 2.0],), "give period"),

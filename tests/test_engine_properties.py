@@ -33,7 +33,8 @@ SHAPES = st.one_of(
 PROFILES = st.one_of(
     st.none(),
     st.builds(ms.DemandProfile,
-              st.lists(st.floats(0.0, 5.0), min_size=1, max_size=6).filter(any),
+              st.lists(st.floats(0.0, 5.0), min_size=1,
+                       max_size=6).filter(lambda x: np.mean(x) > 0),  # as for the stays
               st.floats(0.1, 30.0)),
 )
 

@@ -111,8 +111,15 @@ class DemandProfile:
             begins = np.arange(n) * (length / n)
         lengths = np.diff(np.append(begins, length))
         mean = float(values @ lengths / length)
+        with np.errstate(divide="ignore", over="ignore", invalid="ignore"):
+            normalised = values / mean
+        if not np.isfinite(normalised).all():
+            raise ValueError(
+                f"multipliers must have a mean over the period that they can be divided by "
+                f"(> 0 in floating point), got a mean of {mean:g} from "
+                f"{check._shown(values)}"
+            )
         set_ = object.__setattr__
-        normalised = values / mean
         normalised.flags.writeable = False
         begins = np.array(begins, dtype=float)
         begins.flags.writeable = False
