@@ -11,11 +11,10 @@ import math
 
 import numpy as np
 
-from marketsim import _validation as check
 from marketsim.designs import CellSplit, Design, Switchback
 from marketsim.engine.ledger import Ledger
 from marketsim.estimators.base import Estimator
-from marketsim.estimators.totals import METRICS, Estimate
+from marketsim.estimators.totals import Estimate, booking_values
 from marketsim.model.market import Market
 
 TREATED_PROBABILITY = 0.5
@@ -39,20 +38,13 @@ def block_totals(ledger: Ledger, metric: str = "bookings"
         conversion: its arrivals). Blocks whose kept part is empty are left out.
     treated : ndarray of bool, shape (n_kept_blocks,)
     """
-    check.choice("metric", metric, METRICS)
+    value = booking_values(ledger.cells, metric)
     schedule = ledger.blocks
     if schedule is None:
         raise ValueError(
             "the switchback estimators need the ledger of a switchback design (ms.Switchback"
             f"(...), whose ledger is by blocks), got a ledger of {ledger.cells.design!r}"
         )
-    cells = ledger.cells
-    value = np.ones(cells.n_listing_cells)
-    if metric == "revenue":
-        if cells.price is None:
-            raise ValueError("metric 'revenue' needs a market with prices: pass price=[...] "
-                             "to ms.Market, got a market without prices")
-        value = cells.price
     totals = np.asarray(ledger.bin_bookings, dtype=float).sum(axis=1) @ value
     if metric == "conversion":
         divisors = np.asarray(ledger.bin_arrivals, dtype=float).sum(axis=1)

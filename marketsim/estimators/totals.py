@@ -9,10 +9,29 @@ import numpy as np
 
 from marketsim import _validation as check
 from marketsim.designs import CellSplit
+from marketsim.engine.cells import MarketCells
 from marketsim.engine.ledger import Ledger
 from marketsim.estimators.batches import batch_standard_error, t_quantile
 
 METRICS = ("bookings", "revenue", "conversion")
+
+
+def booking_values(cells: MarketCells, metric: str) -> np.ndarray:
+    """What one booking with each listing cell adds to ``metric``: 1, or the
+    listing's price for revenue; shape (n_listing_cells,).
+
+    Raises
+    ------
+    ValueError
+        For an unknown metric, or revenue in a market without prices.
+    """
+    check.choice("metric", metric, METRICS)
+    if metric != "revenue":
+        return np.ones(cells.n_listing_cells)
+    if cells.price is None:
+        raise ValueError("metric 'revenue' needs a market with prices: pass price=[...] to "
+                         "ms.Market, got a market without prices")
+    return cells.price
 
 
 SE_KINDS = ("naive", "batch means")
@@ -94,16 +113,8 @@ class GroupTotals:
     @classmethod
     def of(cls, ledger: Ledger, metric: str = "bookings") -> GroupTotals:
         """Sum ``ledger`` by listing type and group for ``metric``."""
-        check.choice("metric", metric, METRICS)
         cells = ledger.cells
-        value = np.ones(cells.n_listing_cells)
-        if metric == "revenue":
-            if cells.price is None:
-                raise ValueError(
-                    "metric 'revenue' needs a market with prices: pass price=[...] to "
-                    "ms.Market, got a market without prices"
-                )
-            value = cells.price
+        value = booking_values(cells, metric)
         bookings = np.asarray(ledger.bookings, dtype=float)
         shape = (cells.market.n_listing_types, 2, 2)
         totals, squares = np.zeros(shape), np.zeros(shape)
@@ -203,4 +214,5 @@ def metric_rate(ledger: Ledger, metric: str = "bookings") -> float:
     return float(groups.totals.sum() / groups.scale)
 
 
-__all__ = ["METRICS", "SE_KINDS", "Estimate", "GroupTotals", "group_rates", "metric_rate"]
+__all__ = ["METRICS", "SE_KINDS", "booking_values", "Estimate", "GroupTotals", "group_rates",
+           "metric_rate"]
