@@ -66,8 +66,7 @@ def integrate_piece(model: FlowModel, s0: np.ndarray, duration: float, multiplie
 
     def rhs(_t: float, y: np.ndarray) -> np.ndarray:
         s = y[:n_l]
-        d = model.w0 + model.a @ s
-        book = (lam / np.where(d > 0.0, d, 1.0))[:, None] * model.a * s[None, :]
+        book = model.bookings(s, multiplier)
         return np.concatenate([model.tau * (model.rho - s) - book.sum(axis=0), book.ravel()])
 
     def jacobian(_t: float, y: np.ndarray) -> np.ndarray:
@@ -246,17 +245,11 @@ def periodic_of_cells(cells: MarketCells, points: int = 2) -> PeriodicPath:
         states.append(s)
     available = np.array(states)
     multiplier = profile.multiplier_at(times)
-    rates = np.array([_booking_rate(model, x) for x in available]) * multiplier
+    rates = np.array([model.bookings(x).sum() * model.n for x in available]) * multiplier
     arrivals = model.lam * model.n
     return PeriodicPath(cells=cells, times=times, available=available * model.n,
                         booking_rate=rates, mean_booking_rates=total / period,
                         mean_arrival_rates=arrivals, period=period, periods=periods)
-
-
-def _booking_rate(model: FlowModel, s: np.ndarray) -> float:
-    d = model.w0 + model.a @ s
-    return float(((model.lam / np.where(d > 0.0, d, 1.0))[:, None] * model.a
-                  * s[None, :]).sum() * model.n)
 
 
 def _rates_ledger(cells: MarketCells, booking_rates: np.ndarray, arrival_rates: np.ndarray,

@@ -71,12 +71,17 @@ class FlowModel:
         """``D_c = w0_c + sum_l a_cl s_l``."""
         return self.w0 + self.a @ s
 
-    def flow(self, s: np.ndarray) -> np.ndarray:
-        """Right-hand side of the ODE, ``ds/dt``."""
+    def bookings(self, s: np.ndarray, multiplier: float = 1.0) -> np.ndarray:
+        """Booking rate per listing of each customer cell with each listing cell,
+        ``m lambda_c a_cl s_l / D_c``, shape (C, L); ``multiplier`` ``m`` scales the
+        arrivals (a piece of a demand profile)."""
         d = self.denominators(s)
         safe = np.where(d > 0.0, d, 1.0)
-        bookings = (self.lam / safe)[:, None] * self.a * s[None, :]
-        return self.tau * (self.rho - s) - bookings.sum(axis=0)
+        return (self.lam * multiplier / safe)[:, None] * self.a * s[None, :]
+
+    def flow(self, s: np.ndarray) -> np.ndarray:
+        """Right-hand side of the ODE, ``ds/dt``."""
+        return self.tau * (self.rho - s) - self.bookings(s).sum(axis=0)
 
     def flow_jacobian(self, s: np.ndarray) -> np.ndarray:
         """``d(ds/dt)/ds``, shape (L, L)."""

@@ -75,9 +75,7 @@ def trajectory(
         path = np.clip(sol.y.T[where], 0.0, model.rho[None, :])
     rates = np.empty((times.size, cells.n_customer_cells, cells.n_listing_cells))
     for k, s in enumerate(path):
-        d = model.denominators(s)
-        safe = np.where(d > 0.0, d, 1.0)
-        rates[k] = (model.lam / safe)[:, None] * model.a * s[None, :] * model.n
+        rates[k] = model.bookings(s) * model.n
     return Trajectory(cells=cells, times=times, available=path * model.n, booking_rates=rates)
 
 
